@@ -1,0 +1,1 @@
+"""The invented demo scenario (placeholder until the builder lands)."""

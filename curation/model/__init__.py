@@ -1,0 +1,41 @@
+"""The typed tables; importing this package registers all of them on Base.metadata."""
+
+from curation.db import Base
+from curation.model.accounts import Person
+from curation.model.allocations import Allocation, AllocationItem
+from curation.model.events import Event, EventKind
+from curation.model.items import (
+    CONTROL_KINDS,
+    Derivation,
+    Item,
+    ItemKind,
+    ItemStatus,
+    Method,
+    Placement,
+)
+from curation.model.ledger_entries import LedgerEntry
+from curation.model.stations import Instrument, Location, LocationKind, Station
+from curation.model.studies import Study, StudyItem
+
+__all__ = [
+    "CONTROL_KINDS",
+    "Allocation",
+    "AllocationItem",
+    "Base",
+    "Derivation",
+    "Event",
+    "EventKind",
+    "Instrument",
+    "Item",
+    "ItemKind",
+    "ItemStatus",
+    "LedgerEntry",
+    "Location",
+    "LocationKind",
+    "Method",
+    "Person",
+    "Placement",
+    "Station",
+    "Study",
+    "StudyItem",
+]

@@ -1,0 +1,66 @@
+"""Events on items: steps, custody, handling and readings, on one timeline."""
+
+from __future__ import annotations
+
+from datetime import datetime
+from enum import StrEnum
+from typing import Any
+
+from sqlalchemy import ForeignKey, Index, String, Text
+from sqlalchemy.orm import Mapped, mapped_column, relationship
+
+from curation.db import Base, utcnow
+from curation.model.accounts import Person
+from curation.model.items import Item
+from curation.model.stations import Location, Station
+
+
+class EventKind(StrEnum):
+    STEP = "step"
+    CUSTODY = "custody"
+    HANDLING = "handling"
+    READING = "reading"
+
+
+class Event(Base):
+    """Something that happened to an item at an instant (or over an interval)."""
+
+    __tablename__ = "events"
+    __table_args__ = (Index("ix_events_item_time", "item_id", "occurred_at"),)
+
+    id: Mapped[int] = mapped_column(primary_key=True)
+    kind: Mapped[str] = mapped_column(String(16))
+    item_id: Mapped[int] = mapped_column(ForeignKey("items.id"))
+    #: instrument or station clock, timezone-aware
+    occurred_at: Mapped[datetime]
+    #: end of a session or an exposure; None for an instant
+    ended_at: Mapped[datetime | None]
+    #: server clock when the event was written
+    recorded_at: Mapped[datetime] = mapped_column(default=utcnow)
+    actor_id: Mapped[int] = mapped_column(ForeignKey("people.id"), index=True)
+    station_id: Mapped[int | None] = mapped_column(ForeignKey("stations.id"), index=True)
+    location_id: Mapped[int | None] = mapped_column(ForeignKey("locations.id"), index=True)
+    #: the other person in a custody event (the intended recipient of a release, ...)
+    counterparty_id: Mapped[int | None] = mapped_column(ForeignKey("people.id"))
+    #: a correction names the event it supersedes; both stay visible
+    supersedes_id: Mapped[int | None] = mapped_column(ForeignKey("events.id"), index=True)
+    #: step: technique (e.g. "sem-imaging", "fib-liftout")
+    technique: Mapped[str | None] = mapped_column(String(64))
+    #: custody: action (release, receipt, store, seal-applied, ...); reading: indicator
+    action: Mapped[str | None] = mapped_column(String(64))
+    #: handling: environment (air, n2-glovebox, vacuum, cleanroom)
+    environment: Mapped[str | None] = mapped_column(String(64))
+    is_destructive: Mapped[bool] = mapped_column(default=False)
+    summary: Mapped[str] = mapped_column(String(300), default="")
+    #: validated parameters, seal ids, readings: a JSON object
+    details: Mapped[dict[str, Any]] = mapped_column(default=dict)
+    note: Mapped[str] = mapped_column(Text, default="")
+
+    item: Mapped[Item] = relationship()
+    actor: Mapped[Person] = relationship(foreign_keys=[actor_id])
+    counterparty: Mapped[Person | None] = relationship(foreign_keys=[counterparty_id])
+    station: Mapped[Station | None] = relationship()
+    location: Mapped[Location | None] = relationship()
+
+    def __repr__(self) -> str:
+        return f"<Event {self.id} {self.kind} on item {self.item_id} at {self.occurred_at}>"

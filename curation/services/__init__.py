@@ -1,0 +1,1 @@
+"""Writes, one module per area. Every function takes a Session and the actor, flushes, never commits."""

@@ -1,0 +1,69 @@
+"""Checks shared by every area's writes."""
+
+from __future__ import annotations
+
+from collections.abc import Iterable
+from datetime import datetime
+from typing import TypeVar
+
+from sqlalchemy import select
+from sqlalchemy.orm import Session
+
+from curation.errors import InvalidInput, NaiveTimestamp, NotFound
+from curation.model import Item, Location, Person, Station
+
+T = TypeVar("T")
+
+
+def aware(field: str, value: datetime | None) -> datetime | None:
+    """Refuse a naive timestamp, naming the field."""
+    if value is not None and (value.tzinfo is None or value.utcoffset() is None):
+        raise NaiveTimestamp(field, value.isoformat())
+    return value
+
+
+def one_of(field: str, value: T, allowed: Iterable[T]) -> T:
+    """Refuse a value outside a fixed set, naming the field and the choices."""
+    choices = list(allowed)
+    if value not in choices:
+        raise InvalidInput(field, value, "one of " + ", ".join(str(c) for c in choices))
+    return value
+
+
+def not_negative(field: str, value: float | None) -> float | None:
+    """Refuse a negative quantity (a mass, a volume, an uncertainty)."""
+    if value is not None and not value >= 0:
+        raise InvalidInput(field, value, "zero or more")
+    return value
+
+
+def item_by_code(session: Session, code: str) -> Item:
+    """The item with this label code, or NotFound naming the code."""
+    item = session.scalar(select(Item).where(Item.code == code))
+    if item is None:
+        raise NotFound(f"no item with code {code!r}")
+    return item
+
+
+def person_by_username(session: Session, username: str) -> Person:
+    """The person with this username, or NotFound naming it."""
+    person = session.scalar(select(Person).where(Person.username == username))
+    if person is None:
+        raise NotFound(f"no person with username {username!r}")
+    return person
+
+
+def location_by_code(session: Session, code: str) -> Location:
+    """The location with this code, or NotFound naming it."""
+    location = session.scalar(select(Location).where(Location.code == code))
+    if location is None:
+        raise NotFound(f"no location with code {code!r}")
+    return location
+
+
+def station_by_code(session: Session, code: str) -> Station:
+    """The station with this code, or NotFound naming it."""
+    station = session.scalar(select(Station).where(Station.code == code))
+    if station is None:
+        raise NotFound(f"no station with code {code!r}")
+    return station

@@ -89,8 +89,15 @@ def _path(expr: ColumnElement[Any]) -> ColumnElement[Any]:
     return cast(expr, Text)
 
 
-def _lineage_cte(session: Session, item_id: int, until: datetime | None) -> Any:
-    """Recursive CTE of the item and its ancestors, each with the cut-off instant."""
+def _lineage_cte(
+    session: Session, item_id: int, until: datetime | None, timed: bool = True
+) -> Any:
+    """Recursive CTE of the item and its ancestors, each with the cut-off instant.
+
+    Timed (for histories), a derivation recorded after the cut-off is not followed: what
+    happened to a grandparent after the parent was cut cannot reach the child. Untimed, the
+    plain graph of derivations is walked.
+    """
     seed = select(
         literal(item_id, Integer).label("item_id"),
         _ts(session, until).label("cutoff"),
@@ -102,10 +109,9 @@ def _lineage_cte(session: Session, item_id: int, until: datetime | None) -> Any:
         _earlier(seed.c.cutoff, Derivation.derived_at),
         seed.c.depth + 1,
         _path(seed.c.path + ">" + cast(Derivation.parent_id, Text)),
-    ).join(seed, Derivation.child_id == seed.c.item_id).where(
-        seed.c.depth < MAX_LINEAGE_DEPTH,
-        or_(seed.c.cutoff.is_(None), Derivation.derived_at <= seed.c.cutoff),
-    )
+    ).join(seed, Derivation.child_id == seed.c.item_id).where(seed.c.depth < MAX_LINEAGE_DEPTH)
+    if timed:
+        up = up.where(or_(seed.c.cutoff.is_(None), Derivation.derived_at <= seed.c.cutoff))
     return seed.union_all(up)
 
 
@@ -194,8 +200,8 @@ def effective_history(
 
 
 def ancestors(session: Session, item_id: int) -> list[tuple[int, int, datetime | None]]:
-    """(ancestor id, depth, instant the line was cut from it), nearest first."""
-    lineage = _lineage_cte(session, item_id, None)
+    """(ancestor id, depth, instant the line was cut from it), nearest first; the whole graph."""
+    lineage = _lineage_cte(session, item_id, None, timed=False)
     rows = session.execute(
         select(lineage.c.item_id, lineage.c.depth, lineage.c.cutoff)
         .where(lineage.c.depth > 0).order_by(lineage.c.depth, lineage.c.item_id)
@@ -233,7 +239,7 @@ class TreeNode:
 
 def lineage_tree(session: Session, item_id: int) -> list[TreeNode]:
     """The whole family of an item: its root particle(s) and every descendant, two queries."""
-    lineage = _lineage_cte(session, item_id, None)
+    lineage = _lineage_cte(session, item_id, None, timed=False)
     has_parent = select(Derivation.id).where(Derivation.child_id == lineage.c.item_id).exists()
     roots = [r for r in session.scalars(
         select(lineage.c.item_id).where(~has_parent).distinct())]

@@ -48,6 +48,20 @@ def reset_postgres(url: str) -> Engine:
     return engine
 
 
+@pytest.fixture(scope="session", autouse=True)
+def private_home(tmp_path_factory: pytest.TempPathFactory) -> Iterator[None]:
+    """Keep every test away from the user's real data folder and database."""
+    saved = {k: os.environ.get(k) for k in ("CURATION_HOME", "CURATION_DATABASE_URL")}
+    os.environ["CURATION_HOME"] = str(tmp_path_factory.mktemp("home"))
+    os.environ.pop("CURATION_DATABASE_URL", None)
+    yield
+    for key, value in saved.items():
+        if value is None:
+            os.environ.pop(key, None)
+        else:
+            os.environ[key] = value
+
+
 @pytest.fixture(scope="session", params=["sqlite", pytest.param("postgresql", marks=pytest.mark.postgres)])
 def engine(request: pytest.FixtureRequest, tmp_path_factory: pytest.TempPathFactory) -> Iterator[Engine]:
     """A migrated database on each backend, shared by the whole run."""

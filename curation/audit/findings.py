@@ -1,0 +1,89 @@
+"""Findings, thresholds and the per-item context every rule reads."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field, fields, replace
+from datetime import datetime
+from typing import Any
+
+from curation.history import HistoryEntry
+from curation.model import Event, Item
+
+ERROR, WARNING = "error", "warning"
+
+
+@dataclass(frozen=True)
+class Finding:
+    """One problem found on one item, with the events that show it."""
+
+    code: str
+    severity: str
+    item_id: int
+    item_code: str
+    message: str
+    evidence: tuple[int, ...] = ()
+    at: datetime | None = None
+
+    @property
+    def key(self) -> str:
+        """A stable identity, so a disposition can name the finding it answers."""
+        return f"{self.code}:{self.item_id}:{','.join(map(str, self.evidence))}"
+
+
+@dataclass(frozen=True)
+class Thresholds:
+    """Limits the rules apply; a study's `rules` override the defaults by name."""
+
+    #: a release not received within this many hours is an unreceived transfer
+    receipt_within_hours: float = 24.0
+    #: longest time an item may sit with nobody answerable for it
+    custody_gap_minutes: float = 60.0
+    #: a station clock ahead of the server by more than this is clock skew
+    clock_ahead_minutes: float = 5.0
+    #: recorded this long after it happened is clock skew too (None: not checked)
+    late_entry_hours: float | None = None
+    #: glovebox atmosphere limits, ppm (common practice: purified N2 boxes hold < 1 ppm)
+    max_o2_ppm: float = 5.0
+    max_h2o_ppm: float = 5.0
+    #: the worst cleanroom class the study accepts (None: no requirement)
+    required_iso_class: float | None = None
+
+    @classmethod
+    def from_rules(cls, rules: dict[str, Any] | None) -> Thresholds:
+        """Defaults overridden by the matching keys of a study's rules."""
+        known = {f.name for f in fields(cls)}
+        chosen = {k: v for k, v in (rules or {}).items() if k in known}
+        return replace(cls(), **chosen)
+
+
+@dataclass
+class ItemContext:
+    """What the rules read about one item: its effective history and thresholds."""
+
+    item: Item
+    history: list[HistoryEntry]
+    thresholds: Thresholds
+    now: datetime
+    #: derivations making this item: (parent item, derived_at)
+    parents: list[tuple[Item, datetime]] = field(default_factory=list)
+    #: event ids that a later correction supersedes
+    superseded: set[int] = field(default_factory=set)
+
+    def current(self) -> list[HistoryEntry]:
+        """The history without events a correction has superseded."""
+        return [h for h in self.history if h.event.id not in self.superseded]
+
+    def own(self) -> list[Event]:
+        """Events on the item itself, corrections applied."""
+        return [h.event for h in self.current() if h.reach == "own"]
+
+    def where_it_was(self) -> list[HistoryEntry]:
+        """Events on the item or on a container it sat in (not its ancestors')."""
+        return [h for h in self.current() if h.reach in ("own", "container")]
+
+    def finding(self, code: str, severity: str, message: str, evidence: list[Event],
+                at: datetime | None = None) -> Finding:
+        """A finding on this item with events as evidence."""
+        ids = tuple(e.id for e in evidence)
+        when = at or (evidence[-1].occurred_at if evidence else None)
+        return Finding(code, severity, self.item.id, self.item.code, message, ids, when)

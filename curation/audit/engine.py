@@ -12,7 +12,9 @@ from curation import history
 from curation.audit import custody, environment, timeline
 from curation.audit.findings import Finding, ItemContext, Thresholds
 from curation.db import utcnow
-from curation.model import Derivation, Event, Item, Study, StudyItem
+from curation.model import (
+    Derivation, Disposition, EnvironmentReading, Event, Item, Study, StudyItem,
+)
 
 Rule = Callable[[ItemContext], list[Finding]]
 
@@ -52,7 +54,24 @@ def context(session: Session, item: Item, now: datetime | None = None) -> ItemCo
     parents = [(d.parent, d.derived_at) for d in session.scalars(
         select(Derivation).where(Derivation.child_id == item.id))]
     return ItemContext(item=item, history=entries, thresholds=thresholds_for(session, item),
-                       now=now or utcnow(), parents=parents, superseded=superseded)
+                       now=now or utcnow(), parents=parents, superseded=superseded,
+                       readings=_glovebox_readings(session, entries))
+
+
+def _glovebox_readings(session: Session, entries: list[history.HistoryEntry]
+                       ) -> dict[int, list[EnvironmentReading]]:
+    """Atmosphere readings of the gloveboxes the item was handled in, one query."""
+    boxes = {h.event.location_id for h in entries
+             if h.event.environment == "n2-glovebox" and h.event.location_id is not None}
+    found: dict[int, list[EnvironmentReading]] = {box: [] for box in boxes}
+    if boxes:
+        for reading in session.scalars(
+                select(EnvironmentReading).where(
+                    EnvironmentReading.location_id.in_(boxes),
+                    EnvironmentReading.kind == "atmosphere")
+                .order_by(EnvironmentReading.measured_at)):
+            found[reading.location_id].append(reading)
+    return found
 
 
 def audit_item(session: Session, item: Item, now: datetime | None = None) -> list[Finding]:
@@ -86,3 +105,14 @@ def audit(session: Session, *, item_codes: list[str] | None = None, study: str |
         item = session.get(Item, item_id)
         if item is not None:
             yield from audit_item(session, item, now)
+
+
+def dispositions(session: Session, findings: list[Finding]) -> dict[str, Disposition]:
+    """The latest disposition of each finding that has one, by finding key."""
+    keys = {f.key for f in findings}
+    latest: dict[str, Disposition] = {}
+    if keys:
+        for d in session.scalars(select(Disposition).where(Disposition.finding_key.in_(keys))
+                                 .order_by(Disposition.recorded_at, Disposition.id)):
+            latest[d.finding_key] = d
+    return latest

@@ -7,7 +7,7 @@ from datetime import datetime
 from typing import Any
 
 from curation.history import HistoryEntry
-from curation.model import Event, Item
+from curation.model import EnvironmentReading, Event, Item
 
 ERROR, WARNING = "error", "warning"
 
@@ -68,6 +68,8 @@ class ItemContext:
     parents: list[tuple[Item, datetime]] = field(default_factory=list)
     #: event ids that a later correction supersedes
     superseded: set[int] = field(default_factory=set)
+    #: glovebox atmosphere readings by location id, oldest first
+    readings: dict[int, list[EnvironmentReading]] = field(default_factory=dict)
 
     def current(self) -> list[HistoryEntry]:
         """The history without events a correction has superseded."""

@@ -3,7 +3,9 @@
 from curation.db import Base
 from curation.model.accounts import Person
 from curation.model.allocations import Allocation, AllocationItem
+from curation.model.environment import EnvironmentReading, ReadingKind
 from curation.model.events import Event, EventKind
+from curation.model.findings import Decision, Disposition
 from curation.model.items import (
     CONTROL_KINDS,
     Derivation,
@@ -22,7 +24,10 @@ __all__ = [
     "Allocation",
     "AllocationItem",
     "Base",
+    "Decision",
     "Derivation",
+    "Disposition",
+    "EnvironmentReading",
     "Event",
     "EventKind",
     "Instrument",
@@ -35,6 +40,7 @@ __all__ = [
     "Method",
     "Person",
     "Placement",
+    "ReadingKind",
     "Station",
     "Study",
     "StudyItem",

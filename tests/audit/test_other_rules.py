@@ -119,3 +119,20 @@ def test_a_corrected_event_is_judged_by_its_correction(session, people, places, 
                          reason="O2 typed in the wrong unit",
                          details={"o2_ppm": 0.4, "h2o_ppm": 0.5})
     assert codes_for(session, grain) == []
+
+
+def test_glovebox_log_over_the_handling_window(session, people, places, make_item,
+                                               codes_for) -> None:
+    from curation.services import environment as env
+
+    grain = make_item()
+    custody.handle(session, actor=people["alba"], item=grain, environment="n2-glovebox",
+                   start=hours(1), end=hours(2), location=places["box-a"])
+    env.import_atmosphere_csv(session, actor=people["alba"], location=places["box-a"], text=(
+        "measured_at,o2_ppm,h2o_ppm\n"
+        f"{hours(0.5).isoformat()},30,0.2\n"   # before the window: does not count
+        f"{hours(1.5).isoformat()},0.4,0.3\n"))
+    assert codes_for(session, grain) == []
+    env.record_atmosphere(session, actor=people["alba"], location=places["box-a"],
+                          measured_at=hours(1.8), o2_ppm=0.3, h2o_ppm=12)
+    assert codes_for(session, grain) == ["environment-out-of-spec"]

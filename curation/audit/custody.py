@@ -14,7 +14,7 @@ from dataclasses import dataclass, field
 from datetime import timedelta
 
 from curation.audit.findings import ERROR, WARNING, Finding, ItemContext
-from curation.model import Event
+from curation.model import CONTROL_KINDS, Event, ItemKind
 
 
 @dataclass
@@ -133,6 +133,25 @@ def walk_findings(ctx: ItemContext) -> list[Finding]:
     for _, _, new in walk(ctx):
         found.extend(new)
     return found
+
+
+#: kinds that must always be in someone's custody (containers follow what they hold)
+SPECIMEN_KINDS = frozenset({
+    ItemKind.PARTICLE, ItemKind.FRAGMENT, ItemKind.LAMELLA, ItemKind.WEDGE, ItemKind.NEEDLE,
+    *CONTROL_KINDS})
+
+
+def never_in_custody(ctx: ItemContext) -> list[Finding]:
+    """custody-gap: a specimen or control that no custody event has ever reached."""
+    if ctx.item.kind not in SPECIMEN_KINDS or custody_events(ctx):
+        return []
+    limit = timedelta(minutes=ctx.thresholds.custody_gap_minutes)
+    if ctx.now - ctx.item.created_at <= limit:
+        return []
+    return [ctx.finding(
+        "custody-gap", WARNING,
+        f"no custodian has been recorded for {ctx.item.code} since it was registered "
+        f"({ctx.item.created_at:%Y-%m-%d %H:%M} UTC)", [], at=ctx.item.created_at)]
 
 
 def unreceived_transfer(ctx: ItemContext) -> list[Finding]:

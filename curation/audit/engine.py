@@ -21,6 +21,7 @@ Rule = Callable[[ItemContext], list[Finding]]
 #: every rule, by the finding codes it can raise
 RULES: dict[str, Rule] = {
     "custody-walk": custody.walk_findings,
+    "never-in-custody": custody.never_in_custody,
     "unreceived-transfer": custody.unreceived_transfer,
     "location-conflict": custody.location_conflict,
     "clock-skew": timeline.clock_skew,

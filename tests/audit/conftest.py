@@ -52,3 +52,17 @@ def findings_for() -> Callable[..., list[Finding]]:
         return audit_item(session, item, now=hours(now_hours))
 
     return run
+
+
+@pytest.fixture
+def make_held(session, people, make_item) -> Callable[..., Item]:
+    """Factory: an item Alba received at its creation, so it is in custody from the start."""
+    from curation.services import custody
+
+    def make(**overrides) -> Item:  # type: ignore[no-untyped-def]
+        item = make_item(**overrides)
+        custody.receive(session, actor=people["alba"], item=item, giver=None,
+                        at=item.created_at)
+        return item
+
+    return make

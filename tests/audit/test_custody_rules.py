@@ -114,3 +114,14 @@ def test_location_conflict(session, people, places, make_item, codes_for, findin
     found = findings_for(session, needle)
     assert [f.code for f in found] == ["location-conflict"]
     assert found[0].evidence[-1] == apt.id
+
+
+def test_never_in_custody(session, people, make_item, findings_for, codes_for) -> None:
+    grain, capsule = make_item(), make_item(kind="capsule")
+    found = findings_for(session, grain)
+    assert [f.code for f in found] == ["custody-gap"] and "no custodian" in found[0].message
+    assert codes_for(session, capsule) == []  # an empty container follows what it holds
+    assert codes_for(session, grain, now_hours=0.5) == []  # registered half an hour ago
+    items.place(session, actor=people["alba"], item=grain, container=capsule, placed_at=hours(0))
+    _received(session, people, capsule, at=0)
+    assert codes_for(session, grain) == []  # the capsule's custodian holds what is inside

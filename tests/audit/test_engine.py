@@ -16,8 +16,8 @@ def _air(session, people, item, at):
                           start=hours(at), end=hours(at + 0.5))
 
 
-def test_audit_by_item_and_by_study(session, people, make_item) -> None:
-    kept, other = make_item(is_pristine=True), make_item(is_pristine=True)
+def test_audit_by_item_and_by_study(session, people, make_held) -> None:
+    kept, other = make_held(is_pristine=True), make_held(is_pristine=True)
     _air(session, people, kept, 1)
     _air(session, people, other, 1)
     study = studies.create_study(session, actor="test", code="S-PRIS", title="pristine")
@@ -30,8 +30,8 @@ def test_audit_by_item_and_by_study(session, people, make_item) -> None:
     assert {f.code for f in by_item + by_study} <= set(engine.CODES)
 
 
-def test_disposition_stays_beside_its_finding(session, people, make_item) -> None:
-    kept = make_item(is_pristine=True)
+def test_disposition_stays_beside_its_finding(session, people, make_held) -> None:
+    kept = make_held(is_pristine=True)
     exposure = _air(session, people, kept, 1)
     [finding] = engine.audit_item(session, kept, now=hours(5))
     assert engine.dispositions(session, [finding]) == {}
@@ -47,8 +47,8 @@ def test_disposition_stays_beside_its_finding(session, people, make_item) -> Non
     assert ledger.verify(session).ok
 
 
-def test_disposition_refusals_name_the_field(session, people, make_item) -> None:
-    kept = make_item(is_pristine=True)
+def test_disposition_refusals_name_the_field(session, people, make_held) -> None:
+    kept = make_held(is_pristine=True)
     _air(session, people, kept, 1)
     [finding] = engine.audit_item(session, kept, now=hours(5))
     with pytest.raises(InvalidInput, match="reason"):

@@ -11,8 +11,8 @@ from curation.services import custody, events, items, studies
 from tests.conftest import hours
 
 
-def test_clock_skew_station_ahead(session, people, make_item, codes_for) -> None:
-    grain = make_item()
+def test_clock_skew_station_ahead(session, people, make_held, codes_for) -> None:
+    grain = make_held()
     ev = events.record_event(session, actor=people["alba"], kind="step", item=grain,
                              occurred_at=hours(1), technique="xct")
     # The server wrote it 3 minutes "before" it happened: within the 5 min default.
@@ -26,19 +26,20 @@ def test_clock_skew_station_ahead(session, people, make_item, codes_for) -> None
     assert codes_for(session, grain) == ["clock-skew"]
 
 
-def test_late_entry_only_when_the_study_asks(session, people, make_item, codes_for) -> None:
-    grain = make_item()
+def test_late_entry_only_when_the_study_asks(session, people, make_held, codes_for) -> None:
+    grain = make_held()
     events.record_event(session, actor=people["alba"], kind="step", item=grain,
                         occurred_at=hours(1), technique="xct")
     assert codes_for(session, grain) == []  # written now, months after T0: no limit set
     study = studies.create_study(session, actor="test", code="S-LATE", title="t",
                                  rules={"late_entry_hours": 48})
     studies.enrol(session, actor="test", study=study, item=grain)
-    assert codes_for(session, grain) == ["clock-skew"]
+    # Both the receipt and the step were written long after they happened.
+    assert codes_for(session, grain) == ["clock-skew", "clock-skew"]
 
 
-def test_out_of_order(session, people, make_item, codes_for) -> None:
-    grain = make_item(created_at=hours(10))
+def test_out_of_order(session, people, make_held, codes_for) -> None:
+    grain = make_held(created_at=hours(10))
     events.record_event(session, actor=people["alba"], kind="step", item=grain,
                         occurred_at=hours(11), technique="sem-imaging")
     assert codes_for(session, grain) == []
@@ -47,8 +48,8 @@ def test_out_of_order(session, people, make_item, codes_for) -> None:
     assert codes_for(session, grain) == ["out-of-order"]
 
 
-def test_event_after_consumption_is_out_of_order(session, people, make_item, codes_for) -> None:
-    needle = make_item()
+def test_event_after_consumption_is_out_of_order(session, people, make_held, codes_for) -> None:
+    needle = make_held()
     events.record_event(session, actor=people["alba"], kind="step", item=needle,
                         occurred_at=hours(1), technique="apt", details={"consumed": True})
     assert codes_for(session, needle) == []
@@ -57,26 +58,26 @@ def test_event_after_consumption_is_out_of_order(session, people, make_item, cod
     assert codes_for(session, needle) == ["out-of-order"]
 
 
-def test_orphan_item(session, people, make_item, codes_for) -> None:
-    particle = make_item()
-    lamella = make_item(kind="lamella", created_at=hours(3))
+def test_orphan_item(session, people, make_held, codes_for) -> None:
+    particle = make_held()
+    lamella = make_held(kind="lamella", created_at=hours(3))
     assert codes_for(session, lamella) == ["orphan-item"]
     items.derive(session, actor=people["alba"], parent=particle, child=lamella,
                  derived_at=hours(3))
     assert codes_for(session, lamella) == []
 
 
-def test_cut_after_the_parent_was_consumed(session, people, make_item, codes_for) -> None:
-    particle = make_item()
+def test_cut_after_the_parent_was_consumed(session, people, make_held, codes_for) -> None:
+    particle = make_held()
     events.record_event(session, actor=people["alba"], kind="step", item=particle,
                         occurred_at=hours(1), technique="split", details={"consumed": True})
-    late = make_item(kind="fragment", created_at=hours(2))
+    late = make_held(kind="fragment", created_at=hours(2))
     items.derive(session, actor=people["alba"], parent=particle, child=late, derived_at=hours(2))
     assert "orphan-item" in codes_for(session, late)
 
 
-def test_glovebox_atmosphere(session, people, places, make_item, codes_for) -> None:
-    grain = make_item()
+def test_glovebox_atmosphere(session, people, places, make_held, codes_for) -> None:
+    grain = make_held()
     custody.handle(session, actor=people["alba"], item=grain, environment="n2-glovebox",
                    start=hours(1), end=hours(2), location=places["box-a"], o2_ppm=0.5, h2o_ppm=0.8)
     assert codes_for(session, grain) == []
@@ -85,8 +86,8 @@ def test_glovebox_atmosphere(session, people, places, make_item, codes_for) -> N
     assert codes_for(session, grain) == ["environment-out-of-spec"]
 
 
-def test_cleanroom_class_against_the_study(session, people, places, make_item, codes_for) -> None:
-    grain = make_item()
+def test_cleanroom_class_against_the_study(session, people, places, make_held, codes_for) -> None:
+    grain = make_held()
     custody.handle(session, actor=people["alba"], item=grain, environment="cleanroom",
                    start=hours(1), end=hours(2), location=places["clean-a"])  # ISO 6 room
     assert codes_for(session, grain) == []  # no requirement without a study
@@ -96,8 +97,8 @@ def test_cleanroom_class_against_the_study(session, people, places, make_item, c
     assert codes_for(session, grain) == ["environment-out-of-spec"]
 
 
-def test_pristine_broken(session, people, make_item, codes_for) -> None:
-    kept, ordinary, capsule = make_item(is_pristine=True), make_item(), make_item(kind="capsule")
+def test_pristine_broken(session, people, make_held, codes_for) -> None:
+    kept, ordinary, capsule = make_held(is_pristine=True), make_held(), make_held(kind="capsule")
     items.place(session, actor=people["alba"], item=kept, container=capsule, placed_at=hours(0))
     custody.handle(session, actor=people["alba"], item=ordinary, environment="air",
                    start=hours(1), end=hours(2))
@@ -109,9 +110,9 @@ def test_pristine_broken(session, people, make_item, codes_for) -> None:
     assert codes_for(session, kept) == ["pristine-broken"]
 
 
-def test_a_corrected_event_is_judged_by_its_correction(session, people, places, make_item,
+def test_a_corrected_event_is_judged_by_its_correction(session, people, places, make_held,
                                                       codes_for) -> None:
-    grain = make_item()
+    grain = make_held()
     bad = custody.handle(session, actor=people["alba"], item=grain, environment="n2-glovebox",
                          start=hours(1), end=hours(2), o2_ppm=40, h2o_ppm=0.5)
     assert codes_for(session, grain) == ["environment-out-of-spec"]
@@ -121,11 +122,11 @@ def test_a_corrected_event_is_judged_by_its_correction(session, people, places, 
     assert codes_for(session, grain) == []
 
 
-def test_glovebox_log_over_the_handling_window(session, people, places, make_item,
+def test_glovebox_log_over_the_handling_window(session, people, places, make_held,
                                                codes_for) -> None:
     from curation.services import environment as env
 
-    grain = make_item()
+    grain = make_held()
     custody.handle(session, actor=people["alba"], item=grain, environment="n2-glovebox",
                    start=hours(1), end=hours(2), location=places["box-a"])
     env.import_atmosphere_csv(session, actor=people["alba"], location=places["box-a"], text=(

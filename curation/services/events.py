@@ -70,7 +70,8 @@ def correct_event(
             f"event {original.id} was already corrected by event {later.id}; correct that one")
     fields = {name: getattr(original, name) for name in CORRECTABLE}
     fields.update(changes)
-    fields["note"] = (fields.get("note") or "") + f"\n[correction of event {original.id}: {reason}]"
+    tag = f"[correction of event {original.id}: {reason}]"
+    fields["note"] = f"{fields['note']}\n{tag}" if fields.get("note") else tag
     return record_event(
         session, actor=actor, kind=original.kind, item=original.item, supersedes=original,
         **{k: v for k, v in fields.items()},

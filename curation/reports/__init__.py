@@ -1,0 +1,1 @@
+"""Reports and pictures built from the history: lineage drawings, later exports and summaries."""

@@ -1,0 +1,130 @@
+"""The Flask application: settings, one database session per request, errors, headers."""
+
+from __future__ import annotations
+
+import secrets
+from collections.abc import Mapping
+from dataclasses import dataclass
+from typing import Any
+
+from flask import Flask, Response, current_app, g, render_template
+from sqlalchemy import Engine
+from sqlalchemy.orm import Session, sessionmaker
+from werkzeug.exceptions import HTTPException, InternalServerError
+
+from curation import config as settings
+from curation.db import make_engine, make_sessionmaker
+from curation.errors import CurationError, NotFound
+
+#: sent with every response; scripts and styles only from our own static files
+SECURITY_HEADERS = {
+    "Content-Security-Policy": (
+        "default-src 'self'; script-src 'self'; style-src 'self'; img-src 'self' data:; "
+        "object-src 'none'; base-uri 'none'; form-action 'self'; frame-ancestors 'none'"
+    ),
+    "X-Content-Type-Options": "nosniff",
+    "X-Frame-Options": "DENY",
+    "Referrer-Policy": "same-origin",
+}
+
+
+@dataclass
+class Database:
+    """Where the app's sessions come from; `engine` is None when the caller bound a connection."""
+
+    engine: Engine | None
+    sessions: sessionmaker[Session]
+
+
+def build_app(config: Mapping[str, Any] | None = None) -> Flask:
+    """Build the application: defaults, then the environment, then `config` win."""
+    app = Flask("curation", template_folder="templates", static_folder="static")
+    app.config.update(_settings(config))
+    app.extensions["curation"] = _database(app.config)
+    app.after_request(_finish_transaction)
+    app.after_request(_security_headers)
+    app.teardown_request(_close_session)
+    _register_error_pages(app)
+    # Imported here, as in the Flask tutorial: the blueprints import db_session from this module.
+    from curation.web import items
+
+    app.register_blueprint(items.bp)
+    return app
+
+
+def _settings(config: Mapping[str, Any] | None) -> dict[str, Any]:
+    values: dict[str, Any] = {"TESTING": False, "DATABASE_URL": settings.database_url()}
+    # A fresh key per start until accounts land: sessions do not survive a restart yet.
+    values["SECRET_KEY"] = settings.secret_key() or secrets.token_hex(32)
+    values.update(config or {})
+    return values
+
+
+def _database(values: Mapping[str, Any]) -> Database:
+    bind = values.get("DB_BIND")
+    if bind is not None:
+        # A caller's connection may already be inside a transaction (tests): nest in savepoints.
+        return Database(None, make_sessionmaker(bind, join_transaction_mode="create_savepoint"))
+    engine = make_engine(values["DATABASE_URL"])
+    return Database(engine, make_sessionmaker(engine))
+
+
+def database(app: Flask) -> Database:
+    """The app's database handle (engine and session factory)."""
+    db: Database = app.extensions["curation"]
+    return db
+
+
+def db_session() -> Session:
+    """The request's session, opened on first use; the request commits it once."""
+    if "db_session" not in g:
+        g.db_session = database(current_app).sessions()
+    session: Session = g.db_session
+    return session
+
+
+def _finish_transaction(response: Response) -> Response:
+    session: Session | None = g.get("db_session")
+    if session is not None:
+        # Error pages are rendered by handlers, so the status code says whether to keep the work.
+        if response.status_code < 400:
+            session.commit()
+        else:
+            session.rollback()
+    return response
+
+
+def _close_session(_exc: BaseException | None) -> None:
+    session: Session | None = g.pop("db_session", None)
+    if session is not None:
+        session.close()
+
+
+def _security_headers(response: Response) -> Response:
+    for name, value in SECURITY_HEADERS.items():
+        response.headers.setdefault(name, value)
+    return response
+
+
+def _error_page(status: int, title: str, message: str) -> tuple[str, int]:
+    return render_template("errors/error.html", status=status, title=title,
+                           message=message), status
+
+
+def _register_error_pages(app: Flask) -> None:
+    @app.errorhandler(NotFound)
+    def not_found(exc: NotFound) -> tuple[str, int]:
+        return _error_page(404, "Not found", str(exc))
+
+    @app.errorhandler(CurationError)
+    def refused(exc: CurationError) -> tuple[str, int]:
+        return _error_page(400, "Not accepted", str(exc))
+
+    @app.errorhandler(HTTPException)
+    def http_error(exc: HTTPException) -> tuple[str, int]:
+        return _error_page(exc.code or 500, exc.name, exc.description or "")
+
+    @app.errorhandler(InternalServerError)
+    def server_error(_exc: InternalServerError) -> tuple[str, int]:
+        return _error_page(500, "Something went wrong",
+                           "The server could not finish this request; nothing was saved.")

@@ -91,7 +91,7 @@ def test_demo_no_serve_builds_its_own_database_and_prints_the_summary(home) -> N
     assert f"Items: {len(listed)} (" in result.stdout
     people = query(demo_url, "select count(*) from people")[0][0]
     assert f"People: {people}" in result.stdout
-    for code in ("unreceived-transfer", "step-away-from-custody", "air-exposure-of-pristine"):
+    for code in ("unreceived-transfer", "location-conflict", "pristine-broken"):
         assert code in result.stdout
 
 

@@ -201,7 +201,7 @@ def plant_air_exposure(scene: Scene) -> None:
         note="Came loose from its tab; re-seated on the open bench (21.5 °C, 38 % RH).")
     scene.check_in("fib", "curator_a", MOUNT_02, at_a("2025-10-16 14:00"), "VPL-LAB", "VPL-GB1",
                    SLOTS[MOUNT_02])
-    scene.plant("air-exposure-of-pristine", AIR_EXPOSED, [exposure],
+    scene.plant("pristine-broken", AIR_EXPOSED, [exposure],
                 f"{AIR_EXPOSED} is registered pristine but spent 6 min in laboratory air")
 
 

@@ -134,6 +134,6 @@ def plant_step_away_from_custody(scene: Scene) -> None:
                      {**APT_SETTINGS, "ions_collected": 19_700_000, "final_voltage_kV": 6.2,
                       "outcome": "completed"}, destructive=True)
     stored = scene.marks[f"stored:{RESERVE_COUPON}"]
-    scene.plant("step-away-from-custody", STRAY_NEEDLE, [stored, run],
+    scene.plant("location-conflict", STRAY_NEEDLE, [stored, run],
                 f"{STRAY_NEEDLE} was logged at the atom probe while custody has its coupon "
                 f"{RESERVE_COUPON} stored at the first laboratory")

@@ -385,5 +385,8 @@ def describe_verification(url: str, result: ledger.Verification) -> str:
     return "\n".join(lines)
 
 
+# Commands kept in their own modules register themselves on `main` when imported.
+from curation.cli import audit as _audit  # noqa: E402,F401
+
 if __name__ == "__main__":
     main()

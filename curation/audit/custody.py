@@ -102,7 +102,10 @@ def _seal(ctx: ItemContext, s: CustodyState, ev: Event, found: list[Finding]) ->
         s.seals[seal_id] = ev
         return
     applied = s.seals.get(seal_id)
-    if applied is None:
+    if not seal_id:
+        found.append(ctx.finding(
+            "seal-mismatch", ERROR, f"a {ev.action} on {ctx.item.code} names no seal id", [ev]))
+    elif applied is None:
         known = ", ".join(sorted(s.seals)) or "none"
         found.append(ctx.finding(
             "seal-mismatch", ERROR,

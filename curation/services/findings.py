@@ -17,8 +17,9 @@ def dispose(session: Session, *, actor: Person, finding_key: str, code: str, ite
     one_of("decision", decision, [d.value for d in Decision])
     if not reason.strip():
         raise InvalidInput("reason", reason, "a non-empty reason")
-    if decision == Decision.FIXED and correction is None:
-        raise InvalidInput("correction", None, "the correction event that fixed the finding")
+    if decision == Decision.FIXED and (correction is None or correction.supersedes_id is None):
+        raise InvalidInput("correction", getattr(correction, "id", None),
+                           "a correction event (one that supersedes another) that fixed it")
     if not finding_key.startswith(f"{code}:{item.id}:"):
         raise InvalidInput("finding_key", finding_key, f"a key of a {code} finding on {item.code}")
     disposition = Disposition(

@@ -8,6 +8,7 @@ from dataclasses import dataclass
 from typing import Any
 
 from flask import Flask, Response, current_app, g, render_template
+from flask_wtf.csrf import CSRFProtect
 from sqlalchemy import Engine
 from sqlalchemy.orm import Session, sessionmaker
 from werkzeug.exceptions import HTTPException, InternalServerError
@@ -45,10 +46,14 @@ def build_app(config: Mapping[str, Any] | None = None) -> Flask:
     app.after_request(_security_headers)
     app.teardown_request(_close_session)
     _register_error_pages(app)
+    # Every POST must carry the form's token (tests may turn it off with WTF_CSRF_ENABLED).
+    CSRFProtect(app)
     # Imported here, as in the Flask tutorial: the blueprints import db_session from this module.
-    from curation.web import items
+    from curation.web import custody, findings, items
 
     app.register_blueprint(items.bp)
+    app.register_blueprint(custody.bp)
+    app.register_blueprint(findings.bp)
     return app
 
 

@@ -19,11 +19,13 @@ from sqlalchemy.orm import Session, joinedload, selectinload
 from werkzeug.wrappers import Response
 
 from curation import history
+from curation.audit.engine import audit_item
 from curation.errors import InvalidInput, NotFound
 from curation.model import Derivation, Event, Item, ItemKind, Location, Person, Placement, Station
 from curation.reports import lineage_svg
 from curation.services.events import CORRECTABLE
 from curation.web.app import db_session
+from curation.web.findings import FindingRow, finding_rows
 
 bp = Blueprint("items", __name__)
 
@@ -152,6 +154,10 @@ class ItemView:
     children: list[tuple[Derivation, Item]]
     timeline: list[TimelineRow]
     tree: list[history.TreeNode]
+    #: the audit's findings on the item, with their dispositions
+    findings: list[FindingRow] = field(default_factory=list)
+    #: event id → the findings it is evidence for, as (row number, finding row)
+    evidence: dict[int, list[tuple[int, FindingRow]]] = field(default_factory=dict)
 
 
 def item_by_code(session: Session, code: str) -> Item:
@@ -171,9 +177,10 @@ def item_view(session: Session, code: str) -> ItemView:
         or_(Derivation.child_id == item.id, Derivation.parent_id == item.id))
         .order_by(Derivation.derived_at, Derivation.id)).all()
     entries = history.effective_history(session, item.id)
-    chain, positions = _placement_chain(session, item.id)
+    chain, positions = placement_chain(session, item.id)
     ids = {i for e in entries for i in e.path} | set(chain)
     known.update(_items_by_id(session, ids - known.keys()))
+    rows = finding_rows(session, audit_item(session, item))
     return ItemView(
         item=item,
         placement=[(known[c], positions.get(p, "")) for p, c in zip([item.id, *chain], chain)],
@@ -181,7 +188,17 @@ def item_view(session: Session, code: str) -> ItemView:
         children=[(d, known[d.child_id]) for d in links if d.parent_id == item.id],
         timeline=_timeline(session, entries, known),
         tree=tree,
+        findings=rows,
+        evidence=_evidence_marks(rows),
     )
+
+
+def _evidence_marks(rows: list[FindingRow]) -> dict[int, list[tuple[int, FindingRow]]]:
+    marks: dict[int, list[tuple[int, FindingRow]]] = {}
+    for number, row in enumerate(rows, start=1):
+        for event_id in row.finding.evidence if row.finding else ():
+            marks.setdefault(event_id, []).append((number, row))
+    return marks
 
 
 def _items_by_id(session: Session, ids: set[int]) -> dict[int, Item]:
@@ -189,7 +206,7 @@ def _items_by_id(session: Session, ids: set[int]) -> dict[int, Item]:
     return {i.id: i for i in session.scalars(select(Item).where(Item.id.in_(sorted(ids))))}
 
 
-def _placement_chain(session: Session, item_id: int) -> tuple[list[int], dict[int, str]]:
+def placement_chain(session: Session, item_id: int) -> tuple[list[int], dict[int, str]]:
     """Containers the item sits in now (innermost first) and the position at each level."""
     # The resolver's windows already walk nested placements; an open chain has no end.
     open_chains = [w for w in history.windows(session, item_id)

@@ -60,3 +60,13 @@ def test_disposition_refusals_name_the_field(session, people, make_held) -> None
     with pytest.raises(InvalidInput, match="decision"):
         findings.dispose(session, actor=people["chen"], finding_key=finding.key,
                          code=finding.code, item=kept, decision="ignored", reason="x")
+
+
+def test_fixed_needs_a_real_correction(session, people, make_held) -> None:
+    kept = make_held(is_pristine=True)
+    exposure = _air(session, people, kept, 1)
+    [finding] = engine.audit_item(session, kept, now=hours(5))
+    with pytest.raises(InvalidInput, match="correction"):
+        findings.dispose(session, actor=people["chen"], finding_key=finding.key,
+                         code=finding.code, item=kept, decision="fixed", reason="x",
+                         correction=exposure)

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from collections.abc import Iterable
 from datetime import datetime
-from typing import TypeVar
+from typing import Any, TypeVar
 
 from sqlalchemy import select
 from sqlalchemy.orm import Session
@@ -37,33 +37,29 @@ def not_negative(field: str, value: float | None) -> float | None:
     return value
 
 
+def _one(session: Session, model: type[T], column: Any, value: str, what: str) -> T:
+    """The row whose unique `column` equals `value`, or NotFound naming it."""
+    found = session.scalar(select(model).where(column == value))
+    if found is None:
+        raise NotFound(f"no {what} {value!r}")
+    return found
+
+
 def item_by_code(session: Session, code: str) -> Item:
     """The item with this label code, or NotFound naming the code."""
-    item = session.scalar(select(Item).where(Item.code == code))
-    if item is None:
-        raise NotFound(f"no item with code {code!r}")
-    return item
+    return _one(session, Item, Item.code, code, "item with code")
 
 
 def person_by_username(session: Session, username: str) -> Person:
     """The person with this username, or NotFound naming it."""
-    person = session.scalar(select(Person).where(Person.username == username))
-    if person is None:
-        raise NotFound(f"no person with username {username!r}")
-    return person
+    return _one(session, Person, Person.username, username, "person with username")
 
 
 def location_by_code(session: Session, code: str) -> Location:
     """The location with this code, or NotFound naming it."""
-    location = session.scalar(select(Location).where(Location.code == code))
-    if location is None:
-        raise NotFound(f"no location with code {code!r}")
-    return location
+    return _one(session, Location, Location.code, code, "location with code")
 
 
 def station_by_code(session: Session, code: str) -> Station:
     """The station with this code, or NotFound naming it."""
-    station = session.scalar(select(Station).where(Station.code == code))
-    if station is None:
-        raise NotFound(f"no station with code {code!r}")
-    return station
+    return _one(session, Station, Station.code, code, "station with code")

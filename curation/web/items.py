@@ -23,6 +23,7 @@ from curation.audit.engine import audit_item
 from curation.errors import InvalidInput, NotFound
 from curation.model import Derivation, Event, Item, ItemKind, Location, Person, Placement, Station
 from curation.reports import lineage_svg
+from curation.services.common import item_by_code
 from curation.services.events import CORRECTABLE
 from curation.web.app import db_session
 from curation.web.findings import FindingRow, finding_rows
@@ -158,14 +159,6 @@ class ItemView:
     findings: list[FindingRow] = field(default_factory=list)
     #: event id → the findings it is evidence for, as (row number, finding row)
     evidence: dict[int, list[tuple[int, FindingRow]]] = field(default_factory=dict)
-
-
-def item_by_code(session: Session, code: str) -> Item:
-    """The item with this code, or NotFound naming the code."""
-    item = session.scalar(select(Item).where(Item.code == code))
-    if item is None:
-        raise NotFound(f"no item with code {code!r}")
-    return item
 
 
 def item_view(session: Session, code: str) -> ItemView:

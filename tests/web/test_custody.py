@@ -9,7 +9,6 @@ from html import unescape
 from typing import Any
 
 import pytest
-from flask import Flask
 from flask.testing import FlaskClient
 from sqlalchemy import select
 from sqlalchemy.orm import Session
@@ -19,17 +18,6 @@ from curation.model import EnvironmentReading, Event, Item, Location, Person
 from curation.services import accounts, custody, stations
 from tests.conftest import hours
 from tests.web.test_items import page
-
-
-@pytest.fixture
-def app(connection: Any) -> Flask:
-    return create_app({"DB_BIND": connection, "TESTING": True, "SECRET_KEY": "t",
-                       "WTF_CSRF_ENABLED": False})
-
-
-@pytest.fixture
-def client(app: Flask) -> FlaskClient:
-    return app.test_client()
 
 
 @dataclass

@@ -7,29 +7,17 @@ from dataclasses import dataclass
 from typing import Any
 
 import pytest
-from flask import Flask
 from flask.testing import FlaskClient
 from sqlalchemy import select
 from sqlalchemy.orm import Session
 
-from curation import create_app, ledger
+from curation import ledger
 from curation.audit import engine
 from curation.model import Disposition, Event, Item, Person
 from curation.services import custody, events, studies
 from tests.conftest import hours
 from tests.web.test_custody import error_of, post
 from tests.web.test_items import entry, page
-
-
-@pytest.fixture
-def app(connection: Any) -> Flask:
-    return create_app({"DB_BIND": connection, "TESTING": True, "SECRET_KEY": "t",
-                       "WTF_CSRF_ENABLED": False})
-
-
-@pytest.fixture
-def client(app: Flask) -> FlaskClient:
-    return app.test_client()
 
 
 @dataclass

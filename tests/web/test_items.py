@@ -23,17 +23,6 @@ from curation.web.app import database, db_session
 from tests.conftest import hours
 
 
-@pytest.fixture
-def app(connection: Any) -> Flask:
-    """The app on the test's connection: its sessions nest inside the test's transaction."""
-    return create_app({"DB_BIND": connection, "TESTING": True, "SECRET_KEY": "t"})
-
-
-@pytest.fixture
-def client(app: Flask) -> FlaskClient:
-    return app.test_client()
-
-
 @dataclass
 class Family:
     """A particle in a capsule, lamellae cut from it, a needle from the first lamella."""

@@ -180,8 +180,15 @@ def _laboratory(ev: Event) -> str:
 
 
 def location_conflict(ctx: ItemContext) -> list[Finding]:
-    """A step logged at a laboratory where custody says the item is not."""
-    found = []
+    """A step logged at a laboratory where custody says the item is not, or an inventory
+    check that did not find the item where the record says it is."""
+    found = [ctx.finding(
+        "location-conflict", ERROR,
+        f"inventory check by {ev.actor.name} did not find {ctx.item.code} at "
+        f"{ev.location.name if ev.location else 'its recorded place'}", [ev])
+        for ev in (h.event for h in ctx.where_it_was())
+        if ev.kind == "custody" and ev.action == "inventory-check"
+        and (ev.details or {}).get("found") is False]
     custody = [h.event for h in ctx.current() if h.event.kind == "custody"
                and h.event.location_id is not None]
     for step in (e for e in ctx.own() if e.kind == "step" and e.location_id is not None):

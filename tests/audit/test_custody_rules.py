@@ -125,3 +125,16 @@ def test_never_in_custody(session, people, make_item, findings_for, codes_for) -
     items.place(session, actor=people["alba"], item=grain, container=capsule, placed_at=hours(0))
     _received(session, people, capsule, at=0)
     assert codes_for(session, grain) == []  # the capsule's custodian holds what is inside
+
+
+def test_inventory_check_that_does_not_find_the_item(session, people, places, make_item,
+                                                     codes_for) -> None:
+    grain = make_item()
+    custody.store(session, actor=people["alba"], item=grain, location=places["store-a"],
+                  at=hours(0))
+    custody.check_inventory(session, actor=people["alba"], item=grain,
+                            location=places["store-a"], at=hours(2))
+    assert codes_for(session, grain) == []
+    custody.check_inventory(session, actor=people["alba"], item=grain,
+                            location=places["store-a"], at=hours(3), found=False)
+    assert codes_for(session, grain) == ["location-conflict"]

@@ -6,6 +6,7 @@ import os
 import shutil
 import threading
 from collections.abc import Iterator
+from contextlib import contextmanager
 from dataclasses import dataclass
 from datetime import datetime, timedelta, timezone
 from pathlib import Path
@@ -127,12 +128,12 @@ def _stop(server: Any, thread: threading.Thread) -> None:
     server.task_dispatcher.shutdown()
 
 
-@pytest.fixture(scope="session")
-def live_server(scene_database: tuple[str, Scene]) -> Iterator[str]:
-    """The app served by waitress on a free local port, for the whole session."""
+@contextmanager
+def serving(url: str) -> Iterator[str]:
+    """The app on `url` served by waitress on a free local port."""
     import waitress
 
-    app = create_app({"DATABASE_URL": scene_database[0], "TESTING": True, "SECRET_KEY": "e2e"})
+    app = create_app({"DATABASE_URL": url, "TESTING": True, "SECRET_KEY": "e2e"})
     server = waitress.create_server(app, host="127.0.0.1", port=0, threads=2)
     thread = threading.Thread(target=server.run, name="waitress", daemon=True)
     thread.start()
@@ -143,6 +144,31 @@ def live_server(scene_database: tuple[str, Scene]) -> Iterator[str]:
         engine = database(app).engine
         if engine is not None:
             engine.dispose()
+
+
+@pytest.fixture(scope="session")
+def live_server(scene_database: tuple[str, Scene]) -> Iterator[str]:
+    """The app over the scene, for the whole session."""
+    with serving(scene_database[0]) as base:
+        yield base
+
+
+@pytest.fixture(scope="session")
+def demo_server(tmp_path_factory: pytest.TempPathFactory) -> Iterator[str]:
+    """The app over a freshly built demo scenario, for the whole session."""
+    from curation import demo_data
+
+    url = f"sqlite:///{tmp_path_factory.mktemp('e2e-demo') / 'demo.db'}"
+    engine = make_engine(url)
+    try:
+        upgrade_to_head(engine)
+        with Session(engine, expire_on_commit=False) as session:
+            demo_data.build(session)
+            session.commit()
+    finally:
+        engine.dispose()
+    with serving(url) as base:
+        yield base
 
 
 @pytest.fixture(scope="session")
@@ -164,8 +190,18 @@ def browser() -> Iterator[Any]:
 
 @pytest.fixture
 def page(browser: Any, live_server: str) -> Iterator[Any]:
-    """A fresh browser tab on the live server; fails the test on any console error."""
-    context = browser.new_context(base_url=live_server, viewport={"width": 1280, "height": 900})
+    """A fresh browser tab on the scene's server; fails the test on any console error."""
+    yield from _tab(browser, live_server)
+
+
+@pytest.fixture
+def demo_page(browser: Any, demo_server: str) -> Iterator[Any]:
+    """A fresh browser tab on the demo's server; fails the test on any console error."""
+    yield from _tab(browser, demo_server)
+
+
+def _tab(browser: Any, base_url: str) -> Iterator[Any]:
+    context = browser.new_context(base_url=base_url, viewport={"width": 1280, "height": 900})
     tab = context.new_page()
     problems: list[str] = []
     tab.on("console", lambda msg: problems.append(msg.text) if msg.type == "error" else None)

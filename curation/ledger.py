@@ -9,6 +9,7 @@ old one. `verify` recomputes the chain and compares every domain row with its la
 from __future__ import annotations
 
 import hashlib
+import json
 from collections.abc import Iterator, Mapping
 from dataclasses import dataclass, field
 from datetime import date, datetime, timezone
@@ -221,7 +222,7 @@ def _check_rows(session: Session, result: Verification, latest: dict[tuple[str, 
                 result.problems.append(Problem(
                     "row-unrecorded", f"{table.name} row {key[1]} has no ledger entry",
                     table=table.name, row=key[1]))
-            elif recorded != row_state(table, row):
+            elif recorded != row_state(table, row) and not _same_but_newer(table, row, recorded):
                 result.problems.append(Problem(
                     "row-differs", f"{table.name} row {key[1]} differs from its last ledger state",
                     table=table.name, row=key[1]))
@@ -229,6 +230,27 @@ def _check_rows(session: Session, result: Verification, latest: dict[tuple[str, 
         result.problems.append(Problem(
             "row-missing", f"{table_name} row {row_id} is in the ledger but not in the table",
             table=table_name, row=row_id))
+
+
+#: values a column added by a later migration holds on rows written before it
+_MIGRATION_DEFAULTS = (None, False, 0, "", {}, [])
+
+
+def _same_but_newer(table: Table, row: Mapping[str, Any], recorded: str) -> bool:
+    """True when the row matches its recorded state, columns added since holding defaults.
+
+    A migration that adds a column changes no recorded state; the row is still intact if
+    every recorded column matches and every newer column still holds an empty default.
+    """
+    state = json.loads(recorded)
+    for column in table.columns:
+        value = plain(row[column.name])
+        if column.name in state:
+            if canonical(state[column.name]) != canonical(value):
+                return False
+        elif value not in _MIGRATION_DEFAULTS:
+            return False
+    return True
 
 
 def verify(session: Session) -> Verification:

@@ -5,6 +5,7 @@ from curation.model.accounts import Person
 from curation.model.allocations import Allocation, AllocationItem
 from curation.model.environment import EnvironmentReading, ReadingKind
 from curation.model.events import Event, EventKind
+from curation.model.files import DataFile, Image
 from curation.model.findings import Decision, Disposition
 from curation.model.items import (
     CONTROL_KINDS,
@@ -16,20 +17,23 @@ from curation.model.items import (
     Placement,
 )
 from curation.model.ledger_entries import LedgerEntry
-from curation.model.stations import Instrument, Location, LocationKind, Station
+from curation.model.stations import ApiToken, Instrument, Location, LocationKind, Station
 from curation.model.studies import Study, StudyItem
 
 __all__ = [
     "CONTROL_KINDS",
     "Allocation",
+    "ApiToken",
     "AllocationItem",
     "Base",
+    "DataFile",
     "Decision",
     "Derivation",
     "Disposition",
     "EnvironmentReading",
     "Event",
     "EventKind",
+    "Image",
     "Instrument",
     "Item",
     "ItemKind",

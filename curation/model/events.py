@@ -6,7 +6,7 @@ from datetime import datetime
 from enum import StrEnum
 from typing import Any
 
-from sqlalchemy import ForeignKey, Index, String, Text
+from sqlalchemy import Double, ForeignKey, Index, String, Text, UniqueConstraint
 from sqlalchemy.orm import Mapped, mapped_column, relationship
 
 from curation.db import Base, utcnow
@@ -26,7 +26,10 @@ class Event(Base):
     """Something that happened to an item at an instant (or over an interval)."""
 
     __tablename__ = "events"
-    __table_args__ = (Index("ix_events_item_time", "item_id", "occurred_at"),)
+    __table_args__ = (
+        Index("ix_events_item_time", "item_id", "occurred_at"),
+        UniqueConstraint("submission_key", "item_id"),
+    )
 
     id: Mapped[int] = mapped_column(primary_key=True)
     kind: Mapped[str] = mapped_column(String(16))
@@ -55,6 +58,19 @@ class Event(Base):
     #: validated parameters, seal ids, readings: a JSON object
     details: Mapped[dict[str, Any]] = mapped_column(default=dict)
     note: Mapped[str] = mapped_column(Text, default="")
+    #: one form submission (or API call) that logged this event: a session covering several
+    #: items shares it, and a repeated submission with the same key writes nothing new
+    submission_key: Mapped[str | None] = mapped_column(String(64), index=True)
+    #: electron dose of a beam step, e-/A^2 (computed or as reported by the instrument)
+    electron_dose_e_per_A2: Mapped[float | None] = mapped_column(Double)
+    #: electron dose rate, e-/A^2/s
+    dose_rate_e_per_A2_s: Mapped[float | None] = mapped_column(Double)
+    #: ion fluence of an ion-beam step, ions/cm^2
+    ion_fluence_ions_per_cm2: Mapped[float | None] = mapped_column(Double)
+    #: X-ray exposure, seconds
+    xray_s: Mapped[float | None] = mapped_column(Double)
+    #: the dose came from the instrument rather than from current x time / area
+    is_dose_reported: Mapped[bool] = mapped_column(default=False)
 
     item: Mapped[Item] = relationship()
     actor: Mapped[Person] = relationship(foreign_keys=[actor_id])

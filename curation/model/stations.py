@@ -75,3 +75,22 @@ class Station(Base):
 
     def __repr__(self) -> str:
         return f"<Station {self.code}>"
+
+
+class ApiToken(Base):
+    """A token an instrument-side script presents to post sessions for one station."""
+
+    __tablename__ = "api_tokens"
+
+    id: Mapped[int] = mapped_column(primary_key=True)
+    station_id: Mapped[int] = mapped_column(ForeignKey("stations.id"), index=True)
+    label: Mapped[str] = mapped_column(String(200), default="")
+    #: hex SHA-256 of the token; the token itself is shown once and never stored
+    token_sha256: Mapped[str] = mapped_column(String(64), unique=True)
+    created_at: Mapped[datetime] = mapped_column(default=utcnow)
+    revoked_at: Mapped[datetime | None]
+
+    station: Mapped[Station] = relationship()
+
+    def __repr__(self) -> str:
+        return f"<ApiToken {self.id} for station {self.station_id}>"

@@ -163,3 +163,34 @@ def test_inserted_entry_is_detected(session, make_item) -> None:
     session.execute(LedgerEntry.__table__.insert(), [forged])
     # The forged entry chains correctly, but it names a row the tables do not hold.
     assert ("row-missing", "items", "999999", None) in _problems(session)
+
+
+def test_columns_added_by_a_later_migration_keep_old_rows_intact(session, make_item) -> None:
+    item = make_item(material="olivine")
+    session.commit()
+    seq = session.scalar(select(LedgerEntry.seq).where(
+        LedgerEntry.table_name == "items", LedgerEntry.row_id == str(item.id)))
+    entry = session.get(LedgerEntry, seq)
+    # Rewrite the entry as if it had been written before the column `volume_um3` existed.
+    state = json.loads(entry.state)
+    del state["volume_um3"]
+    fields = dict(seq=entry.seq, table_name=entry.table_name, row_id=entry.row_id,
+                  action=entry.action, state=ledger.canonical(state), actor=entry.actor,
+                  recorded_at=entry.recorded_at, prev_hash=entry.prev_hash)
+    session.connection().execute(text(
+        "UPDATE ledger SET state = :state, hash = :hash WHERE seq = :seq"),
+        {"state": fields["state"], "hash": ledger.entry_hash(**fields), "seq": seq})
+    later = session.scalars(select(LedgerEntry).where(LedgerEntry.seq > seq)).all()
+    for newer in later:  # re-chain what follows, as a migration-era ledger would read
+        prev = session.scalar(select(LedgerEntry.hash).where(LedgerEntry.seq == newer.seq - 1))
+        data = dict(seq=newer.seq, table_name=newer.table_name, row_id=newer.row_id,
+                    action=newer.action, state=newer.state, actor=newer.actor,
+                    recorded_at=newer.recorded_at, prev_hash=prev)
+        session.connection().execute(text(
+            "UPDATE ledger SET prev_hash = :p, hash = :h WHERE seq = :s"),
+            {"p": prev, "h": ledger.entry_hash(**data), "s": newer.seq})
+    session.expire_all()
+    assert ledger.verify(session).ok  # the newer column holds its empty default
+    session.connection().execute(text("UPDATE items SET volume_um3 = 5 WHERE id = :i"),
+                                 {"i": item.id})
+    assert ("row-differs", "items", str(item.id), None) in _problems(session)

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from collections.abc import Iterator
+from contextlib import contextmanager
 from datetime import datetime, timezone
 from pathlib import Path
 from typing import Any
@@ -110,11 +112,35 @@ def alembic_config(connection: Any = None) -> Any:
     return cfg
 
 
+@contextmanager
+def _migrating(engine: Engine) -> Iterator[Any]:
+    """A connection in one transaction for migrations.
+
+    SQLite rebuilds a table to alter it (batch mode), which a referencing row would block
+    while foreign keys are enforced; enforcement is paused outside the transaction, as
+    SQLite requires, and every reference is checked again before the commit.
+    """
+    with engine.connect() as connection:
+        sqlite = engine.dialect.name == "sqlite"
+        if sqlite:
+            connection.connection.driver_connection.execute("PRAGMA foreign_keys=OFF")
+        try:
+            with connection.begin():
+                yield connection
+                if sqlite:
+                    broken = connection.exec_driver_sql("PRAGMA foreign_key_check").fetchall()
+                    if broken:
+                        raise RuntimeError(f"migration left broken references: {broken[:5]}")
+        finally:
+            if sqlite:
+                connection.connection.driver_connection.execute("PRAGMA foreign_keys=ON")
+
+
 def upgrade_to_head(engine: Engine, revision: str = "head") -> None:
     """Migrate the database behind `engine` to `revision` (default: the newest)."""
     from alembic import command
 
-    with engine.begin() as connection:
+    with _migrating(engine) as connection:
         command.upgrade(alembic_config(connection), revision)
 
 
@@ -122,7 +148,7 @@ def downgrade_to(engine: Engine, revision: str) -> None:
     """Migrate the database behind `engine` down to `revision` ("base" for empty)."""
     from alembic import command
 
-    with engine.begin() as connection:
+    with _migrating(engine) as connection:
         command.downgrade(alembic_config(connection), revision)
 
 

@@ -273,3 +273,37 @@ def containers_during(
     return found
 
 
+
+
+def contents(
+    session: Session, container_id: int, start: datetime | None, end: datetime | None
+) -> list[Window]:
+    """Everything that sat inside the container (nested) at some time within [start, end].
+
+    The mirror of `windows`: each returned window is the time the item was inside, cut to
+    [start, end]; `subject_id` is the item, `path` runs from the container down to it.
+    """
+    seed = select(
+        literal(container_id, Integer).label("subject_id"),
+        _ts(session, start).label("lo"),
+        _ts(session, end).label("hi"),
+        literal(0, Integer).label("nesting"),
+        _path(literal(str(container_id))).label("path"),
+    ).cte("contents", recursive=True)
+    p = Placement
+    inward = select(
+        p.item_id,
+        _later(seed.c.lo, p.placed_at),
+        _earlier(seed.c.hi, p.removed_at),
+        seed.c.nesting + 1,
+        _path(seed.c.path + ">" + cast(p.item_id, Text)),
+    ).join(seed, p.container_id == seed.c.subject_id).where(
+        seed.c.nesting < MAX_NESTING_DEPTH,
+        or_(seed.c.hi.is_(None), p.placed_at <= seed.c.hi),
+        or_(seed.c.lo.is_(None), p.removed_at.is_(None), p.removed_at >= seed.c.lo),
+    )
+    tree = seed.union_all(inward)
+    rows = session.execute(select(tree).where(tree.c.nesting > 0)
+                           .order_by(tree.c.nesting, tree.c.subject_id))
+    return [Window(r.subject_id, r.lo, r.hi, container_id, 0, r.nesting,
+                   tuple(int(x) for x in r.path.split(">"))) for r in rows]

@@ -13,7 +13,8 @@ from curation.audit import custody, environment, timeline
 from curation.audit.findings import Finding, ItemContext, Thresholds
 from curation.db import utcnow
 from curation.model import (
-    Derivation, Disposition, EnvironmentReading, Event, Item, Study, StudyItem,
+    ControlLink, Derivation, Disposition, EnvironmentReading, Event, Indicator, Item, Study,
+    StudyItem,
 )
 
 Rule = Callable[[ItemContext], list[Finding]]
@@ -54,9 +55,26 @@ def context(session: Session, item: Item, now: datetime | None = None) -> ItemCo
         select(Event.supersedes_id).where(Event.supersedes_id.in_(ids)))) if ids else set()
     parents = [(d.parent, d.derived_at) for d in session.scalars(
         select(Derivation).where(Derivation.child_id == item.id))]
-    return ItemContext(item=item, history=entries, thresholds=thresholds_for(session, item),
-                       now=now or utcnow(), parents=parents, superseded=superseded,
-                       readings=_glovebox_readings(session, entries))
+    ctx = ItemContext(item=item, history=entries, thresholds=thresholds_for(session, item),
+                      now=now or utcnow(), parents=parents, superseded=superseded,
+                      readings=_glovebox_readings(session, entries))
+    _load_controls(session, ctx)
+    return ctx
+
+
+def _load_controls(session: Session, ctx: ItemContext) -> None:
+    """The item's studies' indicators, control set and the control links that cover it."""
+    studies = select(StudyItem.study_id).where(StudyItem.item_id == ctx.item.id)
+    ctx.indicators = {i.id: i for i in session.scalars(
+        select(Indicator).where(Indicator.study_id.in_(studies)))}
+    ctx.has_control_set = session.scalar(select(StudyItem.id).where(
+        StudyItem.study_id.in_(studies), StudyItem.role == "control").limit(1)) is not None
+    lineage = [ctx.item.id] + [a for a, _, _ in history.ancestors(session, ctx.item.id)]
+    ctx.travels_with_control = session.scalar(select(ControlLink.id).where(
+        ControlLink.sample_id.in_(lineage)).limit(1)) is not None
+    ids = [h.event.id for h in ctx.history]
+    ctx.linked_events = set(session.scalars(select(ControlLink.event_id).where(
+        ControlLink.event_id.in_(ids)))) if ids else set()
 
 
 def _glovebox_readings(session: Session, entries: list[history.HistoryEntry]

@@ -7,7 +7,7 @@ from datetime import datetime
 from typing import Any
 
 from curation.history import HistoryEntry
-from curation.model import EnvironmentReading, Event, Item
+from curation.model import Derivation, EnvironmentReading, Event, Item
 
 ERROR, WARNING = "error", "warning"
 
@@ -47,6 +47,22 @@ class Thresholds:
     max_h2o_ppm: float = 5.0
     #: the worst cleanroom class the study accepts (None: no requirement)
     required_iso_class: float | None = None
+    #: budgets over the effective history (None: the study sets no limit)
+    max_air_minutes: float | None = None
+    max_electron_dose_e_per_A2: float | None = None
+    #: one acquisition's electron dose (None: the default of the item's material class)
+    max_electron_dose_per_acquisition_e_per_A2: float | None = None
+    max_ion_fluence_ions_per_cm2: float | None = None
+    max_xray_s: float | None = None
+    max_temperature_K: float | None = None
+    #: order rules: techniques in the order they must run; electron dose allowed before APT;
+    #: analyses a carbon coat spoils; flag a Ga-beam step before (trace-element) APT
+    technique_order: tuple[str, ...] | list[str] = ()
+    max_electron_dose_before_apt_e_per_A2: float | None = None
+    carbon_analysis_techniques: tuple[str, ...] | list[str] = ()
+    flag_ga_before_apt: bool = False
+    #: mass conservation holds within this many standard uncertainties
+    mass_coverage_factor: float = 2.0
 
     @classmethod
     def from_rules(cls, rules: dict[str, Any] | None) -> Thresholds:
@@ -70,6 +86,16 @@ class ItemContext:
     superseded: set[int] = field(default_factory=set)
     #: glovebox atmosphere readings by location id, oldest first
     readings: dict[int, list[EnvironmentReading]] = field(default_factory=dict)
+    #: indicators of the item's studies by id (for a control's readings)
+    indicators: dict[int, Indicator] = field(default_factory=dict)
+    #: the item is in a study that has a control set
+    has_control_set: bool = False
+    #: a control is linked to travel with the item
+    travels_with_control: bool = False
+    #: handling events a control is linked to
+    linked_events: set[int] = field(default_factory=set)
+    #: derivations cutting children from this item, with the children
+    children: list[tuple[Derivation, Item]] = field(default_factory=list)
 
     def current(self) -> list[HistoryEntry]:
         """The history without events a correction has superseded."""

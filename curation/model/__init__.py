@@ -3,6 +3,7 @@
 from curation.db import Base
 from curation.model.accounts import Person
 from curation.model.allocations import Allocation, AllocationItem
+from curation.model.controls import ControlLink, Indicator
 from curation.model.environment import EnvironmentReading, ReadingKind
 from curation.model.events import Event, EventKind
 from curation.model.files import DataFile, Image
@@ -22,6 +23,7 @@ from curation.model.studies import Study, StudyItem
 
 __all__ = [
     "CONTROL_KINDS",
+    "ControlLink",
     "Allocation",
     "ApiToken",
     "AllocationItem",
@@ -34,6 +36,7 @@ __all__ = [
     "Event",
     "EventKind",
     "Image",
+    "Indicator",
     "Instrument",
     "Item",
     "ItemKind",

@@ -26,10 +26,12 @@ class ItemKind(StrEnum):
     BLANK = "procedural-blank"
     ANALOGUE = "analogue-standard"
     WITNESS = "witness-coupon"
+    MISSION_WITNESS = "mission-witness"
 
 
 #: kinds that are control samples rather than specimens
-CONTROL_KINDS = frozenset({ItemKind.BLANK, ItemKind.ANALOGUE, ItemKind.WITNESS})
+CONTROL_KINDS = frozenset({ItemKind.BLANK, ItemKind.ANALOGUE, ItemKind.WITNESS,
+                           ItemKind.MISSION_WITNESS})
 
 
 class ItemStatus(StrEnum):

@@ -151,3 +151,18 @@ def test_history_is_one_statement_plus_constant_loads(session, operator, make_it
         sa_event.remove(connection, "before_cursor_execute", listener)
     # One recursive query for the timeline, then at most one select-in load per relationship.
     assert len(statements) <= 6
+
+
+def test_contents_mirror_windows(session, operator, make_item) -> None:
+    needle, coupon, capsule, other = (make_item(kind="needle"), make_item(kind="coupon"),
+                                      make_item(kind="capsule"), make_item())
+    items.place(session, actor=operator, item=needle, container=coupon, placed_at=hours(1))
+    items.place(session, actor=operator, item=coupon, container=capsule, placed_at=hours(2),
+                removed_at=hours(4))
+    items.place(session, actor=operator, item=other, container=capsule, placed_at=hours(5))
+    inside = {w.subject_id: w for w in history.contents(session, capsule.id, hours(0), hours(4.5))}
+    assert set(inside) == {coupon.id, needle.id}
+    assert (inside[needle.id].start, inside[needle.id].end) == (hours(2), hours(4))
+    assert inside[needle.id].path == (capsule.id, coupon.id, needle.id)
+    later = {w.subject_id for w in history.contents(session, capsule.id, hours(4.5), None)}
+    assert later == {other.id}

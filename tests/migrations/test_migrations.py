@@ -63,8 +63,17 @@ def _populate(engine: Engine) -> int:
         grain = items.register_item(session, actor=who, code="RT-1", kind="particle",
                                     created_at=hours(0), mass_ug=1.8, mass_method="weighed")
         items.place(session, actor=who, item=grain, container=capsule, placed_at=hours(0))
-        events.record_event(session, actor=who, kind="step", item=grain, occurred_at=hours(1),
-                            technique="xct", details={"voxel_size_um": 0.5})
+        xct = events.record_event(session, actor=who, kind="step", item=grain,
+                                  occurred_at=hours(1), technique="xct",
+                                  details={"voxel_size_um": 0.5})
+        # Rows that reference events, so table rebuilds must keep references intact.
+        events.correct_event(session, actor=who, original=xct, reason="voxel size",
+                             details={"voxel_size_um": 0.6})
+        cut = events.record_event(session, actor=who, kind="step", item=grain,
+                                  occurred_at=hours(2), technique="split")
+        piece = items.register_item(session, actor=who, code="RT-1-F1", kind="fragment",
+                                    created_at=hours(2))
+        items.derive(session, actor=who, parent=grain, child=piece, derived_at=hours(2), step=cut)
         session.commit()
         return session.scalar(select(func.count()).select_from(LedgerEntry))
 

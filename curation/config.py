@@ -13,7 +13,15 @@ ENVIRONMENT = {
     "CURATION_DATABASE_URL": "SQLAlchemy URL of the database (default: SQLite file in CURATION_HOME)",
     "CURATION_HOME": "data folder for the default SQLite databases (default: per-user data folder)",
     "CURATION_SECRET_KEY": "secret key for signed cookies and CSRF tokens",
+    "CURATION_DATA_ROOTS": "folders (separated like PATH) where registered data files must lie",
 }
+
+
+def data_roots(environ: Mapping[str, str] | None = None) -> list[Path]:
+    """The folders registered paths must lie in (CURATION_DATA_ROOTS); empty when unset."""
+    environ = os.environ if environ is None else environ
+    return [Path(p) for p in environ.get("CURATION_DATA_ROOTS", "").split(os.pathsep)
+            if p.strip()]
 
 
 def home(environ: Mapping[str, str] | None = None) -> Path:

@@ -6,10 +6,10 @@ from collections.abc import Callable, Iterator
 from datetime import datetime
 
 from sqlalchemy import select
-from sqlalchemy.orm import Session
+from sqlalchemy.orm import Session, joinedload
 
 from curation import history
-from curation.audit import custody, environment, timeline
+from curation.audit import budgets, contamination, custody, environment, timeline
 from curation.audit.findings import Finding, ItemContext, Thresholds
 from curation.db import utcnow
 from curation.model import (
@@ -29,6 +29,12 @@ RULES: dict[str, Rule] = {
     "out-of-order": timeline.out_of_order,
     "environment-out-of-spec": environment.environment_out_of_spec,
     "pristine-broken": environment.pristine_broken,
+    "dose-over-limit": budgets.dose_over_limit,
+    "exposure-over-limit": budgets.exposure_over_limit,
+    "order-violation": budgets.order_violation,
+    "mass-not-conserved": budgets.mass_not_conserved,
+    "control-failed": contamination.control_failed,
+    "missing-control": contamination.missing_control,
 }
 
 #: every finding code the engine can raise
@@ -36,6 +42,8 @@ CODES = (
     "custody-gap", "unreceived-transfer", "receipt-by-other", "double-custody",
     "location-conflict", "seal-broken", "seal-mismatch", "clock-skew", "out-of-order",
     "orphan-item", "environment-out-of-spec", "pristine-broken",
+    "dose-over-limit", "exposure-over-limit", "order-violation", "mass-not-conserved",
+    "control-failed", "missing-control",
 )
 
 
@@ -57,7 +65,7 @@ def context(session: Session, item: Item, now: datetime | None = None) -> ItemCo
         select(Derivation).where(Derivation.child_id == item.id))]
     ctx = ItemContext(item=item, history=entries, thresholds=thresholds_for(session, item),
                       now=now or utcnow(), parents=parents, superseded=superseded,
-                      readings=_glovebox_readings(session, entries))
+                      readings=_glovebox_readings(session, entries), children=_children(session, item))
     _load_controls(session, ctx)
     return ctx
 
@@ -75,6 +83,13 @@ def _load_controls(session: Session, ctx: ItemContext) -> None:
     ids = [h.event.id for h in ctx.history]
     ctx.linked_events = set(session.scalars(select(ControlLink.event_id).where(
         ControlLink.event_id.in_(ids)))) if ids else set()
+
+
+def _children(session: Session, item: Item) -> list[tuple[Derivation, Item]]:
+    """Derivations cutting children from the item, with the children, one query."""
+    return [(d, d.child) for d in session.scalars(
+        select(Derivation).where(Derivation.parent_id == item.id)
+        .options(joinedload(Derivation.child)).order_by(Derivation.derived_at, Derivation.id))]
 
 
 def _glovebox_readings(session: Session, entries: list[history.HistoryEntry]

@@ -7,7 +7,7 @@ from datetime import datetime
 from typing import Any
 
 from curation.history import HistoryEntry
-from curation.model import Derivation, EnvironmentReading, Event, Item
+from curation.model import Derivation, EnvironmentReading, Event, Indicator, Item
 
 ERROR, WARNING = "error", "warning"
 

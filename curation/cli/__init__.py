@@ -148,6 +148,16 @@ def require_head(engine: Engine, url: str) -> None:
         raise CommandError(f"the database {safe_url(url)} is {state}: run `curation init` first")
 
 
+@contextmanager
+def command_session(ctx: click.Context, db_url: str | None) -> Iterator[Session]:
+    """One session on the command's database (migrated to head), committed once at the end."""
+    url = resolve_url(ctx, db_url, config.database_url)
+    with engine_for(url) as engine:
+        require_head(engine, url)
+        with transaction(engine) as session:
+            yield session
+
+
 @click.group(cls=CurationGroup)
 @db_option()
 def main(db_url: str | None) -> None:
@@ -387,6 +397,8 @@ def describe_verification(url: str, result: ledger.Verification) -> str:
 
 # Commands kept in their own modules register themselves on `main` when imported.
 from curation.cli import audit as _audit  # noqa: E402,F401
+from curation.cli import files as _files, labels as _labels, tokens as _tokens  # noqa: E402,F401,I001
+from curation.cli import reports as _reports  # noqa: E402,F401
 
 if __name__ == "__main__":
     main()

@@ -138,6 +138,18 @@ def open_in_glovebox(scene: Scene) -> None:
                        **TOUCHED, controls=[WITNESS])
     for hour, (o2, h2o) in enumerate(((0.4, 0.7), (0.5, 0.8), (0.4, 0.7))):
         scene.atmosphere("fib", "VPL-GB1", start + minutes(60 * hour), o2, h2o)
+    witness_fails_once(scene, end)
+
+
+def witness_fails_once(scene: Scene, session_end: datetime) -> None:
+    """Planted: the witness coupon, clean before the opening session, counts high after it."""
+    scene.reading("curator_a", WITNESS, "particles-per-mm2", at_a("2025-10-10 09:30"), 1.6, 0.4,
+                  "optical count, 20 fields, at registration")
+    failed = scene.reading("curator_a", WITNESS, "particles-per-mm2",
+                           session_end + minutes(20), 5.9, 0.6, "optical count, 20 fields")
+    scene.plant("control-failed", WITNESS, [failed],
+                f"{WITNESS} counted 5.9 particles/mm² after the glovebox opening session; "
+                f"everything in the glovebox then shared its exposure")
 
 
 def mounting_plan() -> list[tuple[str, str, str]]:
@@ -166,7 +178,7 @@ def split_friable_particle(scene: Scene) -> None:
                {"mass_ug": spec.mass_ug, "mass_uncertainty_ug": 0.3})
     scene.take_out("fib", SPLIT, when + minutes(5))
     split = scene.step("fib", SPLIT, "split", when + minutes(5), 10, "VPL-GB1-PC",
-                       {"method": "needle_press", "fragment_count": 2}, destructive=True,
+                       {"method": "needle_press", "fragment_count": 2},
                        summary="Split along a fracture into two fragments")
     cut = when + minutes(15)
     for k, share in ((1, 0.6), (2, 0.35)):  # about 5 % was lost as fines
@@ -201,8 +213,11 @@ def plant_air_exposure(scene: Scene) -> None:
         note="Came loose from its tab; re-seated on the open bench (21.5 °C, 38 % RH).")
     scene.check_in("fib", "curator_a", MOUNT_02, at_a("2025-10-16 14:00"), "VPL-LAB", "VPL-GB1",
                    SLOTS[MOUNT_02])
-    scene.plant("pristine-broken", AIR_EXPOSED, [exposure],
-                f"{AIR_EXPOSED} is registered pristine but spent 6 min in laboratory air")
+    said = f"{AIR_EXPOSED} is registered pristine but spent 6 min in laboratory air"
+    scene.plant("pristine-broken", AIR_EXPOSED, [exposure], said)
+    scene.plant("exposure-over-limit", AIR_EXPOSED, [exposure],
+                "the study allows no air exposure at all")
+    scene.plant("missing-control", AIR_EXPOSED, [exposure], "no control was present on the bench")
 
 
 def xct(scene: Scene) -> None:
@@ -275,8 +290,7 @@ def lift_outs(scene: Scene, code: str, day: str, grid_post: str,
     # The operator typed 65 for 6.5 nA on the first day; the correction follows.
     current = 65.0 if code == MISTYPED else 6.5
     trench = scene.step("fib", code, "fib-trench", when + minutes(25), 75, "VPL-DB-PC",
-                        {**GALLIUM, "beam_current_nA": current, "trench_depth_um": 10},
-                        destructive=True)
+                        {**GALLIUM, "beam_current_nA": current, "trench_depth_um": 10})
     cut_lamella(scene, code, when + minutes(105), grid_post)
     cut_needles(scene, code, when + minutes(250), needles)
     return trench
@@ -286,7 +300,7 @@ def cut_lamella(scene: Scene, code: str, when: datetime, grid_post: str) -> None
     """Lift a lamella out of `code`, weld it to a grid post and thin it to ~95 nm."""
     liftout = scene.step("fib", code, "fib-liftout", when, 40, "VPL-DB-PC",
                          {**GALLIUM, "beam_current_nA": 0.3, "child_kind": "lamella"},
-                         destructive=True, summary=f"Lamella to {GRID} {grid_post}")
+                         summary=f"Lamella to {GRID} {grid_post}")
     cut, lamella = when + minutes(40), f"{code}-L1"
     scene.register("fib", lamella, "lamella", cut, material=scene.items[code].material,
                    status="in-analysis", description=f"FIB lamella lifted out of {code}",
@@ -294,15 +308,14 @@ def cut_lamella(scene: Scene, code: str, when: datetime, grid_post: str) -> None
     scene.derive("fib", code, lamella, cut, liftout, LAMELLA_REMOVED_UM3)
     scene.place("fib", lamella, GRID, cut, grid_post)
     scene.step("fib", lamella, "fib-lamella-thinning", cut + minutes(10), 90, "VPL-DB-PC",
-               THINNING, destructive=True)
+               THINNING)
 
 
 def cut_needles(scene: Scene, code: str, when: datetime,
                 needles: tuple[tuple[str, str], ...]) -> None:
     """Lift a wedge out of `code`, weld a segment to each coupon post, sharpen each needle."""
     liftout = scene.step("fib", code, "fib-liftout", when, 40, "VPL-DB-PC",
-                         {**GALLIUM, "beam_current_nA": 0.3, "child_kind": "wedge"},
-                         destructive=True)
+                         {**GALLIUM, "beam_current_nA": 0.3, "child_kind": "wedge"})
     cut, wedge = when + minutes(40), f"{code}-W1"
     scene.register("fib", wedge, "wedge", cut, material=scene.items[code].material,
                    status="in-analysis", description=f"Atom-probe wedge lifted out of {code}",
@@ -313,7 +326,7 @@ def cut_needles(scene: Scene, code: str, when: datetime,
         where = f"{coupon} post {post}"
         mounted = scene.step("fib", wedge, "mounting", t, 15, "VPL-DB-PC",
                              {"mount_kind": "needle_coupon", "position": where},
-                             destructive=True, summary=f"Segment {k} welded to {where}")
+                             summary=f"Segment {k} welded to {where}")
         needle = f"{code}-N{k}"
         scene.register("fib", needle, "needle", t + minutes(15),
                        material=scene.items[code].material,
@@ -322,7 +335,7 @@ def cut_needles(scene: Scene, code: str, when: datetime,
         scene.derive("fib", wedge, needle, t + minutes(15), mounted, SEGMENT_UM3)
         scene.place("fib", needle, coupon, t + minutes(15), f"post-{post}")
         scene.step("fib", needle, "fib-needle-sharpening", t + minutes(20), 25, "VPL-DB-PC",
-                   SHARPENING, destructive=True)
+                   SHARPENING)
         t += minutes(50)
     scene.status("fib", wedge, "consumed")
 
@@ -338,10 +351,10 @@ def correct_trench(scene: Scene, trench: Event) -> None:
 
 def read_blank(scene: Scene) -> None:
     """The procedural blank is counted under the microscope after the preparation sessions."""
-    scene.event("curator_a", "reading", BLANK, at_a("2025-10-30 10:00"), "VPL-CR",
-                action="particles-per-mm2",
-                details={"value": 1.8, "uncertainty": 0.4, "unit": "per mm2",
-                         "method": "optical count, 20 fields"})
+    scene.reading("curator_a", BLANK, "particles-per-mm2", at_a("2025-10-30 10:00"), 1.8, 0.4,
+                  "optical count, 20 fields")
+    scene.reading("curator_a", ANALOGUE, "surface-h-at-pct", at_a("2025-10-30 11:00"), 0.9, 0.2,
+                  "APT depth profile of a standard needle, first 5 nm")
 
 
 def plant_unreceived_return(scene: Scene) -> None:

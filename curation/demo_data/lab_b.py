@@ -95,10 +95,8 @@ def unpack(scene: Scene) -> None:
         scene.take_out("curator_b", code, start + minutes(20 + n))
         scene.store("curator_b", code, start + minutes(50 + n), store, slot)
     scene.store("curator_b", VACUUM_CAPSULE, start + minutes(60), "SBN-STORE", "shelf 3")
-    scene.event("curator_b", "reading", WITNESS, start + minutes(90), "SBN-GB",
-                action="particles-per-mm2",
-                details={"value": 2.6, "uncertainty": 0.5, "unit": "per mm2",
-                         "method": "optical count, 20 fields"})
+    scene.reading("curator_b", WITNESS, "particles-per-mm2", start + minutes(90), 2.6, 0.5,
+                  "optical count, 20 fields")
 
 
 def tem(scene: Scene) -> None:
@@ -121,7 +119,7 @@ def apt(scene: Scene) -> None:
     for needle, start, duration, ions, final_kV, outcome in APT_RUNS:
         scene.step("apt", needle, "apt", at_b(start), duration, "SBN-APT-PC",
                    {**APT_SETTINGS, "ions_collected": ions, "final_voltage_kV": final_kV,
-                    "outcome": outcome}, destructive=True)
+                    "outcome": outcome})
         scene.status("apt", needle, "consumed")
     scene.check_in("apt", "curator_b", COUPON, at_b("2025-11-14 14:00"), "SBN-APT", "SBN-STORE",
                    SLOTS[COUPON])
@@ -132,7 +130,7 @@ def plant_step_away_from_custody(scene: Scene) -> None:
     first laboratory (a label scanned from the wrong list)."""
     run = scene.step("apt", STRAY_NEEDLE, "apt", at_b("2025-11-20 10:00"), 200, "SBN-APT-PC",
                      {**APT_SETTINGS, "ions_collected": 19_700_000, "final_voltage_kV": 6.2,
-                      "outcome": "completed"}, destructive=True)
+                      "outcome": "completed"})
     stored = scene.marks[f"stored:{RESERVE_COUPON}"]
     scene.plant("location-conflict", STRAY_NEEDLE, [stored, run],
                 f"{STRAY_NEEDLE} was logged at the atom probe while custody has its coupon "

@@ -18,6 +18,7 @@ from sqlalchemy.orm import InstrumentedAttribute, Session
 from curation.demo_data import lab_a, lab_b
 from curation.demo_data.scene import PlantedProblem, Scene, minutes
 from curation.demo_data.setting import (
+    INDICATORS,
     BODY,
     CAPSULE,
     CAPSULE_SEAL,
@@ -36,7 +37,7 @@ from curation.demo_data.setting import (
     at_facility,
 )
 from curation.model import Event, Item, LedgerEntry, Person
-from curation.services import accounts, allocations, stations, studies
+from curation.services import accounts, allocations, controls, stations, studies
 
 #: the facility's reference for the loan
 ALLOCATION_REFERENCE = "AMB-2025-031"
@@ -118,13 +119,12 @@ def _study_and_allocation(scene: Scene) -> None:
             "required_environment": "n2-glovebox",
             "technique_order": ["xct", "sem-imaging", "eds", "ebsd", "fib-liftout",
                                 "tem-imaging", "stem-eels", "apt"],
-            "controls": {
-                "VPL-BLK-05": {"indicator": "particles-per-mm2", "baseline": 1.5,
-                               "threshold": 5.0},
-                "VPL-WIT-03": {"indicator": "particles-per-mm2", "baseline": 2.0,
-                               "threshold": 6.0},
-            },
         })
+    for code, name, unit, base, u, kind, limit, source in INDICATORS:
+        scene.indicators[code] = controls.define_indicator(
+            scene.session, actor=DEMO_ACTOR, study=scene.study, code=code, name=name, unit=unit,
+            baseline_value=base, baseline_uncertainty=u, threshold_kind=kind,
+            threshold_value=limit, baseline_source=source)
     scene.allocation = allocations.open_allocation(
         scene.session, actor=DEMO_ACTOR, reference=ALLOCATION_REFERENCE, facility=FACILITY,
         investigator=pi, starts_at=at_facility("2025-10-06 10:00"),

@@ -13,8 +13,10 @@ from typing import Any
 
 from sqlalchemy.orm import Session
 
-from curation.model import Allocation, Event, Item, Location, Person, Station, Study
-from curation.services import custody, events, items
+from curation.model import (
+    Allocation, Event, Indicator, Item, Location, Person, Station, Study,
+)
+from curation.services import controls, custody, events, items, steps
 from curation.services import environment as readings
 
 
@@ -51,6 +53,10 @@ class Scene:
         self.corrections: list[tuple[int, int]] = []
         self.study: Study | None = None
         self.allocation: Allocation | None = None
+        #: steps recorded so far, numbering their submission keys
+        self.submissions = 0
+        #: the study's contamination indicators, by code
+        self.indicators: dict[str, Indicator] = {}
 
     def _where(self, code: str | None) -> dict[str, Any]:
         """A station (which brings its location) or a bare location, by code."""
@@ -76,12 +82,16 @@ class Scene:
                                    **self._where(where), **fields)
 
     def step(self, role: str, code: str, technique: str, when: datetime, duration_min: float,
-             where: str, details: dict[str, Any], *, destructive: bool = False,
-             summary: str = "") -> Event:
-        """An instrument session of one technique, with its parameters."""
-        return self.event(role, "step", code, when, where, ended_at=when + minutes(duration_min),
-                          technique=technique, details=details, is_destructive=destructive,
-                          summary=summary)
+             where: str, details: dict[str, Any], *, summary: str = "") -> Event:
+        """An instrument session of one technique at a station, validated, with its dose."""
+        self.submissions += 1
+        result = steps.record_step(
+            self.session, actor=self.people[role], station=self.stations[where],
+            technique=technique, items=[self.items[code]], occurred_at=when,
+            ended_at=when + minutes(duration_min), raw_params=details,
+            # a fixed key per step keeps the demo the same database every time
+            submission_key=f"demo-step-{self.submissions:04d}", summary=summary)
+        return result.events[0]
 
     def custody(self, role: str, code: str, action: str, when: datetime, where: str, *,
                 to: str | None = None, details: dict[str, Any] | None = None) -> Event:
@@ -127,6 +137,14 @@ class Scene:
         """Apply, check (found intact) or break a tamper-evident seal."""
         return custody.seal(self.session, actor=self.people[role], item=self.items[code],
                             action=action, seal_id=seal_id, at=when, location=self.places[where])
+
+    def reading(self, role: str, code: str, indicator: str, when: datetime, value: float,
+                uncertainty: float, source: str) -> Event:
+        """A control reading of one of the study's indicators."""
+        return controls.record_control_reading(
+            self.session, actor=self.people[role], indicator=self.indicators[indicator],
+            control=self.items[code], measured_at=when, value=value, uncertainty=uncertainty,
+            source=source)
 
     def handling(self, role: str, code: str, environment: str, start: datetime, end: datetime,
                  where: str, **conditions: Any) -> Event:

@@ -79,7 +79,7 @@ LOCATIONS = [
 INSTRUMENTS = [
     ("VPL-XCT-1", "Laboratory-source X-ray microscope", "xct", "VPL-XCT"),
     ("VPL-DB-1", "Dual-beam FIB-SEM with EDS, EBSD and TKD detectors",
-     "sem eds ebsd tkd fib", "VPL-FIB"),
+     "sem eds ebsd tkd fib mounting", "VPL-FIB"),
     ("VPL-CT-1", "Carbon thread coater", "coating", "VPL-CR"),
     ("SBN-TEM-1", "Probe-corrected S/TEM with EELS spectrometer", "tem stem eels", "SBN-TEM"),
     ("SBN-APT-1", "Laser-pulsed atom probe", "apt", "SBN-APT"),
@@ -165,6 +165,16 @@ VACUUM_CAPSULE, VACUUM_CAPSULE_SEAL = "VPL-VTC-02", "VPL-S-20931"
 CARRIER = "Tarnwell Express"
 #: the three controls: procedural blank, terrestrial analogue standard, witness coupon
 BLANK, ANALOGUE, WITNESS = "VPL-BLK-05", "STD-LZ-01", "VPL-WIT-03"
+
+#: the study's contamination indicators: code, name, unit, baseline ± u, threshold kind and
+#: value, where the baseline comes from (all invented for the demo)
+INDICATORS = (
+    ("particles-per-mm2", "Particles on the control surface", "particles/mm²", 1.8, 0.4,
+     "k-sigma", 3.0,
+     "series of six procedural blanks counted before the campaign"),
+    ("surface-h-at-pct", "Hydrogen in the first 5 nm (APT)", "percent", 0.8, 0.2, "absolute", 1.5,
+     "unirradiated lizardite standard, three needles"),
+)
 CONTROLS = (BLANK, ANALOGUE, WITNESS)
 #: the TEM lift-out grid, the atom-probe needle coupon that travels, and the reserve coupon
 #: of spare needles that stays at the first laboratory

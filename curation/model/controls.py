@@ -24,7 +24,7 @@ class Indicator(Base):
     #: short code, e.g. "surface-h2o", "carbon-at-pct", "na-ng-cm2"
     code: Mapped[str] = mapped_column(String(64))
     name: Mapped[str] = mapped_column(String(200))
-    #: unit of value, baseline and threshold, as pint reads it
+    #: unit of value, baseline and threshold, as printed
     unit: Mapped[str] = mapped_column(String(64))
     baseline_value: Mapped[float] = mapped_column(Double)
     #: standard uncertainty of the baseline, same unit

@@ -47,13 +47,28 @@ def build_app(config: Mapping[str, Any] | None = None) -> Flask:
     app.teardown_request(_close_session)
     _register_error_pages(app)
     # Every POST must carry the form's token (tests may turn it off with WTF_CSRF_ENABLED).
-    CSRFProtect(app)
+    csrf = CSRFProtect(app)
     # Imported here, as in the Flask tutorial: the blueprints import db_session from this module.
     from curation.web import custody, findings, items
 
     app.register_blueprint(items.bp)
     app.register_blueprint(custody.bp)
     app.register_blueprint(findings.bp)
+    from curation.web import stations
+
+    app.register_blueprint(stations.bp)
+    from curation.web import api, files
+
+    app.register_blueprint(files.bp)
+    # Scripts authenticate with a station's bearer token, which browsers never send by themselves.
+    csrf.exempt(api.bp)
+    app.register_blueprint(api.bp)
+    from curation.web import reports
+
+    app.register_blueprint(reports.bp)
+    from curation.web import controls
+
+    app.register_blueprint(controls.bp)
     return app
 
 
@@ -61,6 +76,8 @@ def _settings(config: Mapping[str, Any] | None) -> dict[str, Any]:
     values: dict[str, Any] = {"TESTING": False, "DATABASE_URL": settings.database_url()}
     # A fresh key per start until accounts land: sessions do not survive a restart yet.
     values["SECRET_KEY"] = settings.secret_key() or secrets.token_hex(32)
+    # Uploads (images, small data files) up to 256 MiB; larger files are registered by path.
+    values["MAX_CONTENT_LENGTH"] = 256 * 1024 * 1024
     values.update(config or {})
     return values
 

@@ -23,6 +23,7 @@ from curation.audit.engine import audit_item
 from curation.errors import InvalidInput, NotFound
 from curation.model import Derivation, Event, Item, ItemKind, Location, Person, Placement, Station
 from curation.reports import lineage_svg
+from curation.services import images
 from curation.services.common import item_by_code
 from curation.services.events import CORRECTABLE
 from curation.web.app import db_session
@@ -326,7 +327,8 @@ def item_page(code: str) -> str:
     picture = lineage_svg.render(
         view.tree, current_id=view.item.id, label=f"Lineage of {view.item.code}",
         href=lambda i: url_for("items.item_page", code=i.code))
-    return render_template("items/item.html", v=view, picture=Markup(picture))
+    return render_template("items/item.html", v=view, picture=Markup(picture),
+                           files=images.files_with_images(db_session(), view.item.id))
 
 
 @bp.get("/events/<int:event_id>")

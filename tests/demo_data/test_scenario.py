@@ -6,6 +6,7 @@ from __future__ import annotations
 import math
 
 import pytest
+from scipy import constants
 from sqlalchemy import select
 from sqlalchemy.orm import Session
 
@@ -22,7 +23,7 @@ from curation.model import (
     Placement,
     StudyItem,
 )
-from curation.techniques import validate
+from curation.techniques import dose_for, validate
 
 STEP_TECHNIQUES = {
     "xct", "sem-imaging", "eds", "ebsd", "fib-trench", "fib-liftout", "fib-lamella-thinning",
@@ -86,7 +87,8 @@ def test_sphere_mass_matches_the_handbook_example() -> None:
 
 def test_three_controls_one_of_each_kind_enrolled_as_controls(session, demo) -> None:
     controls = [i for i in _items(session) if i.kind in CONTROL_KINDS]
-    assert sorted(c.kind for c in controls) == sorted(k.value for k in CONTROL_KINDS)
+    assert sorted(c.kind for c in controls) == [
+        "analogue-standard", "procedural-blank", "witness-coupon"]
     roles = {s.item_id: s.role for s in session.scalars(select(StudyItem))}
     assert all(roles.get(c.id) == "control" for c in controls)
 
@@ -144,6 +146,23 @@ def test_every_step_uses_a_catalogue_technique_with_valid_parameters(session, de
     for step in steps:
         validate(step.technique, step.details)  # raises ValidationFailed naming every field
         assert step.ended_at is not None and step.ended_at > step.occurred_at
+
+
+def test_steps_carry_their_computed_dose_and_a_submission_key(session, demo) -> None:
+    steps = [s for s in _events(session, kind="step") if s.supersedes_id is None]
+    keys = [s.submission_key for s in steps]
+    assert all(keys) and len(set(keys)) == len(keys)
+    for step in steps:
+        dose = dose_for(step.technique, step.details)
+        assert step.electron_dose_e_per_A2 == (dose.electron_dose_e_per_A2 if dose else None)
+        assert step.ion_fluence_ions_per_cm2 == (dose.ion_fluence_ions_per_cm2 if dose else None)
+        assert step.xray_s == (dose.xray_seconds if dose else None)
+    eels = [s for s in steps if s.technique == "stem-eels"]
+    # D = I·t / (e·A) (Egerton): 20 pA for 4.608 s over 0.2304 µm², CODATA e from scipy
+    expected = 0.02e-9 * 4.608 / (constants.e * 0.2304 * 1e8)
+    assert eels and all(s.electron_dose_e_per_A2 == pytest.approx(expected, rel=1e-12)
+                        for s in eels)
+    assert expected < 100  # the study's limit, as the scenario intends
 
 
 def test_glovebox_and_cleanroom_handling_record_their_conditions(session, demo) -> None:

@@ -42,3 +42,19 @@ def test_correction_needs_a_reason_and_known_fields(session, operator, make_item
 def test_end_before_start_is_refused(make_item, make_event) -> None:
     with pytest.raises(InvalidInput, match="ended_at"):
         make_event(make_item(), 5, kind="handling", environment="air", ended_at=hours(4))
+
+
+def test_a_correction_keeps_the_dose_unless_it_corrects_it(session, operator, make_item) -> None:
+    item = make_item()
+    step = events.record_event(session, actor=operator, kind="step", item=item,
+                               occurred_at=hours(1), technique="tem-imaging",
+                               dose={"electron_dose_e_per_A2": 62.4, "is_dose_reported": True})
+    fixed = events.correct_event(session, actor=operator, original=step, reason="summary",
+                                 summary="bright field")
+    assert fixed.electron_dose_e_per_A2 == 62.4 and fixed.is_dose_reported
+    again = events.correct_event(session, actor=operator, original=fixed, reason="dose",
+                                 electron_dose_e_per_A2=31.2)
+    assert again.electron_dose_e_per_A2 == 31.2
+    with pytest.raises(InvalidInput, match="dose"):
+        events.record_event(session, actor=operator, kind="step", item=item,
+                            occurred_at=hours(2), dose={"dose_gray": 1})

@@ -1,0 +1,51 @@
+"""The controls report as a PDF (fpdf2), with the same tables as the page."""
+
+from __future__ import annotations
+
+from typing import Any
+
+from fpdf import FPDF
+
+from curation.reports.controls import ControlsReport
+from curation.reports.lineage_pdf import _heading, _table, latin
+
+
+def reading_rows(r: ControlsReport) -> list[dict[str, Any]]:
+    """Every control reading with its verdict."""
+    codes = {c.id: c.code for c in r.controls}
+    return [{"control": codes[cid], "indicator": row.indicator.code,
+             "measured": f"{row.event.occurred_at:%Y-%m-%d %H:%M} UTC",
+             "value": f"{row.event.details['value']:g} +/- {row.event.details['uncertainty']:g}",
+             "unit": row.indicator.unit, "z": f"{row.verdict.z:.2f}",
+             "limit": f"{row.verdict.limit:.3g}", "verdict": "pass" if row.verdict.passed else "FAIL"}
+            for cid, rows in r.readings.items() for row in rows]
+
+
+def risk_rows(r: ControlsReport) -> list[dict[str, Any]]:
+    """Every item at risk from every failure, with the chain that links it."""
+    return [{"failure": f"event {f.reading.event.id}", "item": item.code, "kind": item.kind,
+             "depth": risk.depth,
+             "linked by": " / ".join(f"{link.kind} ({link.description})" for link in risk.path)}
+            for f in r.failures for item, risk in f.at_risk]
+
+
+def render(r: ControlsReport) -> bytes:
+    """The whole controls report as PDF bytes."""
+    pdf = FPDF(orientation="landscape", format="A4")
+    pdf.set_auto_page_break(auto=True, margin=12)
+    pdf.add_page()
+    pdf.set_font("Helvetica", "B", 16)
+    pdf.multi_cell(0, 9, latin(f"Contamination controls: {r.study.code}"), new_x="LMARGIN",
+                   new_y="NEXT")
+    _heading(pdf, "Indicators")
+    _table(pdf, [{"code": i.code, "name": i.name, "unit": i.unit,
+                  "baseline": f"{i.baseline_value:g} +/- {i.baseline_uncertainty:g}",
+                  "threshold": f"{i.threshold_kind} {i.threshold_value:g}",
+                  "source": i.baseline_source} for i in r.indicators],
+           ["code", "name", "unit", "baseline", "threshold", "source"])
+    _heading(pdf, "Readings")
+    _table(pdf, reading_rows(r), ["control", "indicator", "measured", "value", "unit", "z",
+                                  "limit", "verdict"])
+    _heading(pdf, "Items that shared an exposure with a failed control")
+    _table(pdf, risk_rows(r), ["failure", "item", "kind", "depth", "linked by"])
+    return bytes(pdf.output())

@@ -1,0 +1,56 @@
+"""The auditor's pages on a hand-built study: readings, failures, items at risk, PDF."""
+
+from __future__ import annotations
+
+import pytest
+
+from curation.services import controls, custody, items, studies
+from tests.conftest import hours
+
+
+@pytest.fixture
+def study(session, operator, make_item):
+    """A witness and a grain in one capsule; the witness fails after the stay."""
+    study = studies.create_study(session, actor="test", code="S-WEB", title="web controls")
+    witness = make_item(code="W-WEB", kind="witness-coupon")
+    grain, capsule = make_item(code="G-WEB"), make_item(code="C-WEB", kind="capsule")
+    lonely = make_item(code="L-WEB")
+    studies.enrol(session, actor="test", study=study, item=witness, role="control")
+    for thing in (witness, grain):
+        items.place(session, actor=operator, item=thing, container=capsule, placed_at=hours(1),
+                    removed_at=hours(2))
+    custody.handle(session, actor=operator, item=lonely, environment="air", start=hours(1),
+                   end=hours(2))
+    ind = controls.define_indicator(session, actor="test", study=study, code="dust",
+                                    name="Dust <count>", unit="per mm²", baseline_value=1,
+                                    baseline_uncertainty=0.5, threshold_kind="absolute",
+                                    threshold_value=3)
+    controls.record_control_reading(session, actor=operator, indicator=ind, control=witness,
+                                    measured_at=hours(0), value=1.2, uncertainty=0.3)
+    controls.record_control_reading(session, actor=operator, indicator=ind, control=witness,
+                                    measured_at=hours(3), value=7.5, uncertainty=0.3)
+    session.commit()
+    return study
+
+
+def test_controls_page_names_the_items_at_risk(client, study) -> None:
+    html = client.get("/studies/S-WEB/controls").get_data(as_text=True)
+    at_risk = html[html.index('class="report-table at-risk"'):]
+    assert "G-WEB" in at_risk and "C-WEB" in at_risk and "L-WEB" not in at_risk
+    assert "Dust &lt;count&gt;" in html  # escaped
+    assert html.count('class="verdict pass"') == 1 and html.count('class="verdict fail"') == 1
+    assert "<svg" in html
+
+
+def test_depth_is_checked_and_named(client, study) -> None:
+    response = client.get("/studies/S-WEB/controls?depth=9")
+    assert response.status_code == 400
+    assert "depth" in response.get_data(as_text=True) and "1 to 4" in response.get_data(as_text=True)
+
+
+def test_pdf_and_unknown_study(client, study) -> None:
+    pdf = client.get("/studies/S-WEB/controls.pdf")
+    assert pdf.status_code == 200 and pdf.data.startswith(b"%PDF")
+    assert "attachment" in pdf.headers["Content-Disposition"]
+    assert client.get("/studies/NOPE/controls").status_code == 404
+    assert "S-WEB" in client.get("/studies").get_data(as_text=True)

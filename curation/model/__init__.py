@@ -2,7 +2,10 @@
 
 from curation.db import Base
 from curation.model.accounts import Person
-from curation.model.allocations import Allocation, AllocationItem
+from curation.model.allocations import (
+    Allocation, AllocationItem, AllocationMember, AllocationOutput, AllocationReport,
+    AllocationReturn,
+)
 from curation.model.controls import ControlLink, Indicator
 from curation.model.environment import EnvironmentReading, ReadingKind
 from curation.model.events import Event, EventKind
@@ -27,6 +30,10 @@ __all__ = [
     "Allocation",
     "ApiToken",
     "AllocationItem",
+    "AllocationMember",
+    "AllocationOutput",
+    "AllocationReport",
+    "AllocationReturn",
     "Base",
     "DataFile",
     "Decision",

@@ -2,13 +2,19 @@
 
 from __future__ import annotations
 
-from flask import Blueprint, Response, render_template, request
+from flask import Blueprint, Response, abort, flash, redirect, render_template, request, url_for
+from flask_wtf import FlaskForm
 from markupsafe import Markup
 from sqlalchemy import select
+from sqlalchemy.orm import Session
 
-from curation.errors import InvalidInput
+from curation.errors import CurationError, InvalidInput
 from curation.model import Study
 from curation.reports import controls, controls_pdf
+from curation.services import controls as control_writes
+from curation.services.common import item_by_code, person_by_username
+from curation.services.environment import ImportRejected
+from curation.web import forms as f
 from curation.web.app import db_session
 
 bp = Blueprint("controls", __name__)
@@ -31,18 +37,80 @@ def _depth() -> int:
     return int(raw)
 
 
-def _page(report: controls.ControlsReport, depth: int) -> str:
+def _page(report: controls.ControlsReport, depth: int,
+          forms: dict[str, FlaskForm] | None = None) -> str:
     plots = {(c.id, i.id): Markup(controls.readings_svg(report.readings[c.id], i))
              for c in report.controls for i in report.indicators}
     return render_template("reports/controls.html", r=report, plots=plots, depth=depth,
-                           max_depth=MAX_DEPTH)
+                           max_depth=MAX_DEPTH, forms=forms or {})
+
+
+def reading_forms(session: Session, report: controls.ControlsReport,
+                  posted: str | None = None) -> dict[str, FlaskForm]:
+    """The reading and import forms, choices filled in; only the posted one reads the request."""
+    built: dict[str, FlaskForm] = {}
+    for name, form_class in (("reading", f.ControlReadingForm),
+                             ("import", f.ControlReadingsFileForm)):
+        form = form_class(prefix=name, **({} if name == posted else {"formdata": None}))
+        form.operator.choices = f.operator_choices(session)
+        built[name] = form
+    built["reading"].control.choices = [(c.code, c.code) for c in report.controls]
+    built["reading"].indicator.choices = [(i.code, i.name) for i in report.indicators]
+    return built
+
+
+def _record(session: Session, report: controls.ControlsReport, kind: str,
+            form: FlaskForm) -> str:
+    actor = person_by_username(session, form.operator.data)
+    if kind == "reading":
+        indicator = next(i for i in report.indicators if i.code == form.indicator.data)
+        control_writes.record_control_reading(
+            session, actor=actor, indicator=indicator,
+            control=item_by_code(session, form.control.data),
+            measured_at=form.measured_at.data, value=form.value.data,
+            uncertainty=form.uncertainty.data, source=form.source.data or "")
+        return f"Recorded a reading of {indicator.name} on {form.control.data}"
+    upload = form.file.data
+    try:
+        text = upload.read().decode("utf-8-sig")
+    except UnicodeDecodeError:
+        raise InvalidInput("file", upload.filename, "a UTF-8 text (CSV) file") from None
+    rows = control_writes.import_control_readings_csv(
+        session, actor=actor, study=report.study, text=text,
+        source=form.source.data or upload.filename or "")
+    return f"Imported {len(rows)} control reading(s)"
+
+
+@bp.post("/studies/<code>/controls/<kind>")
+def record_reading(code: str, kind: str) -> Response | tuple[str, int]:
+    """Record a control reading, or import a file of them, then show the controls again."""
+    if kind not in ("reading", "import"):
+        abort(404)
+    session = db_session()
+    report = controls.controls_report(session, code)
+    forms = reading_forms(session, report, posted=kind)
+    form = forms[kind]
+    if not form.validate_on_submit():
+        return _page(report, controls.DEFAULT_DEPTH, forms), 400
+    try:
+        said = _record(session, report, kind, form)
+    except ImportRejected as exc:
+        form.file.errors = [*exc.problems]
+        return _page(report, controls.DEFAULT_DEPTH, forms), 400
+    except CurationError as exc:
+        f.attach_error(form, exc)
+        return _page(report, controls.DEFAULT_DEPTH, forms), 400
+    flash(said)
+    return redirect(url_for("controls.controls_page", code=code))
 
 
 @bp.get("/studies/<code>/controls")
 def controls_page(code: str) -> str:
     """Each control's readings against its baseline, the failures and the items at risk."""
     depth = _depth()
-    return _page(controls.controls_report(db_session(), code, depth), depth)
+    session = db_session()
+    report = controls.controls_report(session, code, depth)
+    return _page(report, depth, reading_forms(session, report))
 
 
 @bp.get("/studies/<code>/controls.pdf")

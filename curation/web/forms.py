@@ -429,3 +429,24 @@ class DispositionForm(FlaskForm):
     correction_id = IntegerField("Correction event #", validators=[Optional(),
                                                                    NumberRange(min=1)],
                                  description="When fixed: the id of the correction event.")
+
+
+class ControlReadingForm(FlaskForm):
+    operator = operator_field()
+    control = SelectField("Control", validators=[_required("Control")])
+    indicator = SelectField("Indicator", validators=[_required("Indicator")])
+    measured_at = MomentField("Measured at", validators=[_required("Measured at")])
+    value = FloatField("Value", validators=[_required("Value")])
+    uncertainty = FloatField("Standard uncertainty", validators=[_required("Uncertainty"),
+                                                                 NumberRange(min=0)])
+    source = StringField("How it was measured", validators=[Optional(), Length(max=200)])
+
+
+class ControlReadingsFileForm(FlaskForm):
+    operator = operator_field()
+    file = FileField("Control readings (CSV)",
+                     validators=[FileRequired(message="required: choose the CSV file")],
+                     description="Columns control, indicator, measured_at, value, uncertainty; "
+                                 "every timestamp with its UTC offset. One bad row and nothing "
+                                 "is imported.")
+    source = StringField("Source", validators=[Optional(), Length(max=200)])

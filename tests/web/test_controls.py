@@ -54,3 +54,24 @@ def test_pdf_and_unknown_study(client, study) -> None:
     assert "attachment" in pdf.headers["Content-Disposition"]
     assert client.get("/studies/NOPE/controls").status_code == 404
     assert "S-WEB" in client.get("/studies").get_data(as_text=True)
+
+
+def test_record_a_reading_and_refuse_a_bad_file(client, study, operator) -> None:
+    form = {"reading-operator": operator.username, "reading-control": "W-WEB",
+            "reading-indicator": "dust", "reading-measured_at": "2026-03-02T12:00",
+            "reading-measured_at-offset": "+00:00", "reading-value": "9.1",
+            "reading-uncertainty": "0.2", "reading-source": "count"}
+    done = client.post("/studies/S-WEB/controls/reading", data=form)
+    assert done.status_code == 302
+    html = client.get("/studies/S-WEB/controls").get_data(as_text=True)
+    assert html.count('class="verdict fail"') == 2
+    import io
+    bad = {"import-operator": operator.username,
+           "import-file": (io.BytesIO(b"control,indicator,measured_at,value,uncertainty\n"
+                                      b"W-WEB,dust,2026-03-02 12:00,1,0.1\n"), "r.csv")}
+    refused = client.post("/studies/S-WEB/controls/import", data=bad,
+                          content_type="multipart/form-data")
+    assert refused.status_code == 400
+    assert "line 2: measured_at" in refused.get_data(as_text=True)
+    after = client.get("/studies/S-WEB/controls").get_data(as_text=True)
+    assert after.count('class="verdict') == html.count('class="verdict')

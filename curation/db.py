@@ -75,8 +75,16 @@ def _sqlite_pragmas(dbapi_connection: Any, _record: Any) -> None:
     cursor.close()
 
 
+#: execution option marking a connection that only reads (SQLite then begins DEFERRED)
+READ_ONLY = "curation_read_only"
+
+
 def _sqlite_begin(conn: Any) -> None:
-    conn.exec_driver_sql("BEGIN")
+    # A writing transaction takes the write lock at BEGIN, so two writers never both read
+    # and then fail to upgrade ("database is locked"); the second waits its turn (busy
+    # timeout). Pages that only read say so and keep WAL's concurrent readers.
+    read_only = conn.get_execution_options().get(READ_ONLY, False)
+    conn.exec_driver_sql("BEGIN" if read_only else "BEGIN IMMEDIATE")
 
 
 def make_engine(url: str, **kwargs: Any) -> Engine:

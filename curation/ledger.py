@@ -18,7 +18,7 @@ from enum import Enum
 from typing import Any
 
 import rfc8785
-from sqlalchemy import Table, event, inspect, select
+from sqlalchemy import Table, event, inspect, select, text
 from sqlalchemy.orm import Session, UOWTransaction
 
 from curation.db import Base, utcnow
@@ -30,9 +30,32 @@ LEDGER_TABLE = LedgerEntry.__tablename__
 ACTOR_KEY = "curation.actor"
 
 
+#: the PostgreSQL advisory lock every writing transaction holds (any constant would do)
+WRITER_LOCK = 0x6375726174696F6E  # "curation"
+LOCKED_KEY = "curation.locked-transaction"
+
+
 def attribute(session: Session, actor: Person | str) -> None:
-    """Name who the session's next writes are by (a Person or a system label)."""
+    """Name who the session's next writes are by, and wait for the writers' turn.
+
+    Every service calls this before it reads what it checks, so concurrent writers are
+    serialised from that point: their checks see each other's committed rows and the ledger
+    chain never forks. SQLite gets the same from BEGIN IMMEDIATE (see curation.db).
+    """
     session.info[ACTOR_KEY] = actor if isinstance(actor, str) else actor.username
+    serialise_writers(session)
+
+
+def serialise_writers(session: Session) -> None:
+    """Hold the writers' lock until this transaction ends (PostgreSQL; once per transaction)."""
+    if session.get_bind().dialect.name != "postgresql":
+        return
+    transaction = session.get_transaction()
+    marker = id(transaction) if transaction is not None else None
+    if marker is not None and session.info.get(LOCKED_KEY) == marker:
+        return
+    session.execute(text("SELECT pg_advisory_xact_lock(:key)"), {"key": WRITER_LOCK})
+    session.info[LOCKED_KEY] = id(session.get_transaction())
 
 
 def current_actor(session: Session) -> str:
@@ -103,6 +126,7 @@ def append_rows(session: Session, rows: list[tuple[Table, str, Mapping[str, Any]
     if not rows:
         return
     actor = current_actor(session)
+    serialise_writers(session)
     seq, prev = _last(session)
     entries = []
     for table, action, row in rows:

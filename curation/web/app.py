@@ -7,14 +7,14 @@ from collections.abc import Mapping
 from dataclasses import dataclass
 from typing import Any
 
-from flask import Flask, Response, current_app, g, render_template
+from flask import Flask, Response, current_app, g, render_template, request
 from flask_wtf.csrf import CSRFProtect
 from sqlalchemy import Engine
 from sqlalchemy.orm import Session, sessionmaker
 from werkzeug.exceptions import HTTPException, InternalServerError
 
 from curation import config as settings
-from curation.db import make_engine, make_sessionmaker
+from curation.db import READ_ONLY, make_engine, make_sessionmaker
 from curation.errors import CurationError, NotFound
 
 #: sent with every response; scripts and styles only from our own static files
@@ -69,6 +69,9 @@ def build_app(config: Mapping[str, Any] | None = None) -> Flask:
     from curation.web import controls
 
     app.register_blueprint(controls.bp)
+    from curation.web import allocations
+
+    app.register_blueprint(allocations.bp)
     return app
 
 
@@ -101,6 +104,9 @@ def db_session() -> Session:
     """The request's session, opened on first use; the request commits it once."""
     if "db_session" not in g:
         g.db_session = database(current_app).sessions()
+        if request.method in ("GET", "HEAD"):
+            # Pages only read: SQLite may begin DEFERRED and run beside a writer.
+            g.db_session.connection(execution_options={READ_ONLY: True})
     session: Session = g.db_session
     return session
 

@@ -166,3 +166,44 @@ def current_revision(engine: Engine) -> str | None:
 
     with engine.connect() as connection:
         return MigrationContext.configure(connection).get_current_revision()
+
+
+def libpq_url(url: str) -> str:
+    """The URL as PostgreSQL's own tools read it (no SQLAlchemy driver suffix)."""
+    parsed = make_url(url)
+    return parsed.set(drivername="postgresql").render_as_string(hide_password=False)
+
+
+def backup(url: str, target: Path) -> None:
+    """A consistent copy of the database in `target` (SQLite file, or pg_dump's custom format)."""
+    import sqlite3
+    import subprocess
+
+    parsed = make_url(url)
+    if parsed.get_backend_name() == "sqlite":
+        source = sqlite3.connect(parsed.database or "")
+        copy = sqlite3.connect(target)
+        try:
+            source.backup(copy)  # the online backup API: consistent even while others write
+        finally:
+            copy.close()
+            source.close()
+        return
+    subprocess.run(["pg_dump", "--format=custom", "--no-owner", f"--file={target}",
+                    libpq_url(url)], check=True, capture_output=True)
+
+
+def restore(source: Path, url: str) -> None:
+    """Replace the database at `url` with the copy in `source`."""
+    import shutil
+    import subprocess
+
+    parsed = make_url(url)
+    if parsed.get_backend_name() == "sqlite":
+        path = Path(parsed.database or "")
+        for suffix in ("-wal", "-shm"):
+            Path(f"{path}{suffix}").unlink(missing_ok=True)
+        shutil.copyfile(source, path)
+        return
+    subprocess.run(["pg_restore", "--clean", "--if-exists", "--no-owner", "--single-transaction",
+                    f"--dbname={libpq_url(url)}", str(source)], check=True, capture_output=True)

@@ -9,11 +9,18 @@ from sqlalchemy import select
 from sqlalchemy.orm import Session, joinedload
 
 from curation import history
-from curation.audit import budgets, contamination, custody, environment, timeline
+from curation.audit import allocations, budgets, contamination, custody, environment, timeline
 from curation.audit.findings import Finding, ItemContext, Thresholds
 from curation.db import utcnow
 from curation.model import (
-    ControlLink, Derivation, Disposition, EnvironmentReading, Event, Indicator, Item, Study,
+    ControlLink,
+    Derivation,
+    Disposition,
+    EnvironmentReading,
+    Event,
+    Indicator,
+    Item,
+    Study,
     StudyItem,
 )
 
@@ -44,6 +51,7 @@ CODES = (
     "orphan-item", "environment-out-of-spec", "pristine-broken",
     "dose-over-limit", "exposure-over-limit", "order-violation", "mass-not-conserved",
     "control-failed", "missing-control",
+    *allocations.ALLOCATION_CODES,
 )
 
 
@@ -108,14 +116,19 @@ def _glovebox_readings(session: Session, entries: list[history.HistoryEntry]
     return found
 
 
-def audit_item(session: Session, item: Item, now: datetime | None = None) -> list[Finding]:
-    """Every finding on one item, oldest first."""
+def audit_item(session: Session, item: Item, now: datetime | None = None,
+               allocated: dict[int, list[Finding]] | None = None) -> list[Finding]:
+    """Every finding on one item, oldest first; `allocated`: the allocation findings by item,
+    when the caller computed them for every item at once."""
     ctx = context(session, item, now)
     found: list[Finding] = []
     for rule in RULES.values():
         found.extend(rule(ctx))
     ends = {p.id: _end(session, p) for p, _ in ctx.parents}
     found.extend(timeline.orphan_item(ctx, ends))
+    # allocation rules read a whole allocation, not one item's context (audit/allocations.py)
+    found.extend(allocations.item_findings(session, item, ctx.now) if allocated is None
+                 else allocated.get(item.id, []))
     return sorted(found, key=lambda f: (f.at is None, f.at or ctx.now, f.code))
 
 
@@ -135,10 +148,12 @@ def audit(session: Session, *, item_codes: list[str] | None = None, study: str |
     if study:
         stmt = stmt.join(StudyItem, StudyItem.item_id == Item.id).join(
             Study, Study.id == StudyItem.study_id).where(Study.code == study)
+    moment = now or utcnow()
+    allocated = allocations.findings_by_item(session, moment)
     for item_id in session.scalars(stmt).all():
         item = session.get(Item, item_id)
         if item is not None:
-            yield from audit_item(session, item, now)
+            yield from audit_item(session, item, moment, allocated)
 
 
 def dispositions(session: Session, findings: list[Finding]) -> dict[str, Disposition]:

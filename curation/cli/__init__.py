@@ -399,7 +399,10 @@ def describe_verification(url: str, result: ledger.Verification) -> str:
 from curation.cli import audit as _audit  # noqa: E402,F401
 from curation.cli import files as _files, labels as _labels, tokens as _tokens  # noqa: E402,F401,I001
 from curation.cli import reports as _reports  # noqa: E402,F401
+from curation.cli import bench as _bench, imports as _imports  # noqa: E402,F401,I001
 from curation.cli import controls as _controls  # noqa: E402,F401
+from curation.cli import backup as _backup  # noqa: E402,F401
+from curation.cli import allocations as _allocations  # noqa: E402,F401
 
 if __name__ == "__main__":
     main()

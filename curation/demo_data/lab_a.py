@@ -296,23 +296,24 @@ def lift_outs(scene: Scene, code: str, day: str, grid_post: str,
     return trench
 
 
-def cut_lamella(scene: Scene, code: str, when: datetime, grid_post: str) -> None:
+def cut_lamella(scene: Scene, code: str, when: datetime, grid_post: str,
+                grid: str = GRID) -> Event:
     """Lift a lamella out of `code`, weld it to a grid post and thin it to ~95 nm."""
     liftout = scene.step("fib", code, "fib-liftout", when, 40, "VPL-DB-PC",
                          {**GALLIUM, "beam_current_nA": 0.3, "child_kind": "lamella"},
-                         summary=f"Lamella to {GRID} {grid_post}")
+                         summary=f"Lamella to {grid} {grid_post}")
     cut, lamella = when + minutes(40), f"{code}-L1"
     scene.register("fib", lamella, "lamella", cut, material=scene.items[code].material,
                    status="in-analysis", description=f"FIB lamella lifted out of {code}",
                    volume_um3=196.0, volume_uncertainty_um3=40.0, volume_method="dimensions")
     scene.derive("fib", code, lamella, cut, liftout, LAMELLA_REMOVED_UM3)
-    scene.place("fib", lamella, GRID, cut, grid_post)
-    scene.step("fib", lamella, "fib-lamella-thinning", cut + minutes(10), 90, "VPL-DB-PC",
-               THINNING)
+    scene.place("fib", lamella, grid, cut, grid_post)
+    return scene.step("fib", lamella, "fib-lamella-thinning", cut + minutes(10), 90,
+                      "VPL-DB-PC", THINNING)
 
 
 def cut_needles(scene: Scene, code: str, when: datetime,
-                needles: tuple[tuple[str, str], ...]) -> None:
+                needles: tuple[tuple[str, str], ...]) -> list[Event]:
     """Lift a wedge out of `code`, weld a segment to each coupon post, sharpen each needle."""
     liftout = scene.step("fib", code, "fib-liftout", when, 40, "VPL-DB-PC",
                          {**GALLIUM, "beam_current_nA": 0.3, "child_kind": "wedge"})
@@ -321,7 +322,7 @@ def cut_needles(scene: Scene, code: str, when: datetime,
                    status="in-analysis", description=f"Atom-probe wedge lifted out of {code}",
                    volume_um3=188.0, volume_uncertainty_um3=40.0, volume_method="dimensions")
     scene.derive("fib", code, wedge, cut, liftout, WEDGE_REMOVED_UM3)
-    t = cut + minutes(10)
+    t, sharpened = cut + minutes(10), []
     for k, (coupon, post) in enumerate(needles, 1):
         where = f"{coupon} post {post}"
         mounted = scene.step("fib", wedge, "mounting", t, 15, "VPL-DB-PC",
@@ -334,10 +335,11 @@ def cut_needles(scene: Scene, code: str, when: datetime,
                        volume_um3=SEGMENT_UM3, volume_method="dimensions")
         scene.derive("fib", wedge, needle, t + minutes(15), mounted, SEGMENT_UM3)
         scene.place("fib", needle, coupon, t + minutes(15), f"post-{post}")
-        scene.step("fib", needle, "fib-needle-sharpening", t + minutes(20), 25, "VPL-DB-PC",
-                   SHARPENING)
+        sharpened.append(scene.step("fib", needle, "fib-needle-sharpening", t + minutes(20),
+                                    25, "VPL-DB-PC", SHARPENING))
         t += minutes(50)
     scene.status("fib", wedge, "consumed")
+    return sharpened
 
 
 def correct_trench(scene: Scene, trench: Event) -> None:

@@ -15,10 +15,9 @@ from dataclasses import dataclass, field
 from sqlalchemy import func, select
 from sqlalchemy.orm import InstrumentedAttribute, Session
 
-from curation.demo_data import lab_a, lab_b
+from curation.demo_data import lab_a, lab_b, second_loan
 from curation.demo_data.scene import PlantedProblem, Scene, minutes
 from curation.demo_data.setting import (
-    INDICATORS,
     BODY,
     CAPSULE,
     CAPSULE_SEAL,
@@ -27,7 +26,9 @@ from curation.demo_data.setting import (
     CORRELATIVE,
     DEMO_ACTOR,
     FACILITY,
+    INDICATORS,
     INSTRUMENTS,
+    LAB_A,
     LOCATIONS,
     MISSION,
     PARTICLES,
@@ -129,7 +130,8 @@ def _study_and_allocation(scene: Scene) -> None:
         scene.session, actor=DEMO_ACTOR, reference=ALLOCATION_REFERENCE, facility=FACILITY,
         investigator=pi, starts_at=at_facility("2025-10-06 10:00"),
         report_due_at=at_facility("2027-06-30 00:00"),
-        expires_at=at_facility("2027-10-06 00:00"),
+        expires_at=at_facility("2027-10-06 00:00"), approving_body=second_loan.COMMITTEE,
+        laboratory=LAB_A,
         conditions="Handle under dry nitrogen only; no air exposure; return the unused "
                    "particles and every mount by the expiry date.")
 
@@ -221,6 +223,13 @@ SECTIONS = (
     lab_b.apt,
     lab_b.plant_step_away_from_custody,
     lab_a.plant_unreceived_return,
+    second_loan.first_loan_paperwork,
+    second_loan.open_second_loan,
+    second_loan.to_lab_a,
+    second_loan.open_and_cut,
+    second_loan.return_lamella,
+    second_loan.plant_missing_needle,
+    second_loan.transfer_needles,
 )
 
 

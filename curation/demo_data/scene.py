@@ -14,7 +14,14 @@ from typing import Any
 from sqlalchemy.orm import Session
 
 from curation.model import (
-    Allocation, Event, Indicator, Item, Location, Person, Station, Study,
+    Allocation,
+    Event,
+    Indicator,
+    Item,
+    Location,
+    Person,
+    Station,
+    Study,
 )
 from curation.services import controls, custody, events, items, steps
 from curation.services import environment as readings
@@ -53,6 +60,8 @@ class Scene:
         self.corrections: list[tuple[int, int]] = []
         self.study: Study | None = None
         self.allocation: Allocation | None = None
+        #: every allocation by reference (the first one too)
+        self.allocations: dict[str, Allocation] = {}
         #: steps recorded so far, numbering their submission keys
         self.submissions = 0
         #: the study's contamination indicators, by code

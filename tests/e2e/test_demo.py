@@ -11,7 +11,8 @@ pytestmark = pytest.mark.browser
 #: what the demo plants (curation/demo_data) and the finding each must raise
 PLANTED = [("KR-0309", "pristine-broken"), ("KR-0309", "exposure-over-limit"),
            ("KR-0309", "missing-control"), ("KR-0305-N3", "location-conflict"),
-           ("PEL-TC-07", "unreceived-transfer"), ("VPL-WIT-03", "control-failed")]
+           ("PEL-TC-07", "unreceived-transfer"), ("VPL-WIT-03", "control-failed"),
+           ("KR-0313-N3", "allocation-unbalanced")]
 
 
 def test_findings_page_lists_the_planted_problems(demo_page) -> None:

@@ -1,0 +1,52 @@
+"""`curation allocations` and `curation report allocation` on the demo."""
+
+from __future__ import annotations
+
+import csv
+import io
+import json
+
+import pytest
+from click.testing import CliRunner
+
+from curation.cli import main
+
+
+@pytest.fixture(scope="module")
+def demo_url(tmp_path_factory) -> str:
+    url = f"sqlite:///{tmp_path_factory.mktemp('alloc') / 'demo.db'}"
+    result = CliRunner().invoke(main, ["demo", "--no-serve", "--db", url])
+    assert result.exit_code == 0, result.output
+    return url
+
+
+def _run(url: str, *args: str):
+    return CliRunner().invoke(main, [*args, "--db", url])
+
+
+def test_allocations_json(demo_url: str) -> None:
+    result = _run(demo_url, "allocations", "--json")
+    assert result.exit_code == 0, result.output
+    rows = {r["reference"]: r for r in json.loads(result.output)}
+    assert set(rows) == {"AMB-2025-031", "AMB-2026-004", "AMB-2026-004-T1"}
+    assert rows["AMB-2026-004-T1"]["parent"] == "AMB-2026-004"
+    assert rows["AMB-2025-031"]["balanced"] and not rows["AMB-2026-004"]["balanced"]
+
+
+def test_report_by_suffix(demo_url: str, tmp_path) -> None:
+    for suffix in ("pdf", "html", "csv"):
+        out = tmp_path / f"r.{suffix}"
+        result = _run(demo_url, "report", "allocation", "AMB-2026-004", "-o", str(out))
+        assert result.exit_code == 0, result.output
+    assert (tmp_path / "r.pdf").read_bytes().startswith(b"%PDF-")
+    assert "KR-0313-N3" in (tmp_path / "r.html").read_text()
+    rows = list(csv.DictReader(io.StringIO((tmp_path / "r.csv").read_text())))
+    accounting = [r for r in rows if r["table"] == "accounting"]
+    assert [(r["item"], r["balanced"]) for r in accounting] == [("KR-0313", "NO")]
+    returned = [r for r in rows if r["table"] == "returns"]
+    assert [r["item"] for r in returned] == ["KR-0313-L1"]
+
+
+def test_unknown_suffix_is_refused(demo_url: str, tmp_path) -> None:
+    result = _run(demo_url, "report", "allocation", "AMB-2026-004", "-o", str(tmp_path / "r.x"))
+    assert result.exit_code != 0 and "unknown format" in result.output

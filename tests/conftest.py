@@ -7,10 +7,12 @@ import itertools
 import os
 from collections.abc import Callable, Iterator
 from datetime import datetime, timedelta, timezone
+from pathlib import Path
 from typing import Any
 
 import pytest
-from sqlalchemy import Engine, text
+from sqlalchemy import Engine, create_engine, text
+from sqlalchemy.engine import make_url
 from sqlalchemy.orm import Session
 
 from curation.db import make_engine, upgrade_to_head
@@ -37,6 +39,24 @@ def require_postgres() -> str:
             pytest.fail(f"CI=true but {PG_ENV} is not set: PostgreSQL tests must run in CI")
         pytest.skip(f"{PG_ENV} not set")
     return url
+
+
+BACKENDS = ["sqlite", pytest.param("postgresql", marks=pytest.mark.postgres)]
+
+
+def empty_database_url(backend: str, tmp_path: Path, name: str) -> str:
+    """The URL of a new, empty database of its own: an SQLite file, or a PostgreSQL database
+    named after the test database with `_name` added (dropped first if it is left over)."""
+    if backend == "sqlite":
+        return f"sqlite:///{tmp_path / (name + '.db')}"
+    base = make_url(require_postgres())
+    database = f"{base.database}_{name}"
+    admin = create_engine(base.set(database="postgres"), isolation_level="AUTOCOMMIT")
+    with admin.connect() as conn:
+        conn.execute(text(f'DROP DATABASE IF EXISTS "{database}" WITH (FORCE)'))
+        conn.execute(text(f'CREATE DATABASE "{database}"'))
+    admin.dispose()
+    return base.set(database=database).render_as_string(hide_password=False)
 
 
 def reset_postgres(url: str) -> Engine:

@@ -3,32 +3,19 @@
 from __future__ import annotations
 
 import re
-from collections.abc import Iterator
 from pathlib import Path
 
 import pytest
 from click.testing import CliRunner
-from sqlalchemy import create_engine, text
-from sqlalchemy.engine import make_url
 
 from curation.cli import main
-from tests.conftest import require_postgres
+from tests.conftest import BACKENDS, empty_database_url
 
 
-@pytest.fixture(params=["sqlite", pytest.param("postgresql", marks=pytest.mark.postgres)])
-def url(request: pytest.FixtureRequest, tmp_path: Path) -> Iterator[str]:
+@pytest.fixture(params=BACKENDS)
+def url(request: pytest.FixtureRequest, tmp_path: Path) -> str:
     """An empty database of its own."""
-    if request.param == "sqlite":
-        yield f"sqlite:///{tmp_path / 'live.db'}"
-        return
-    base = make_url(require_postgres())
-    name = f"{base.database}_backup"
-    admin = create_engine(base.set(database="postgres"), isolation_level="AUTOCOMMIT")
-    with admin.connect() as conn:
-        conn.execute(text(f'DROP DATABASE IF EXISTS "{name}" WITH (FORCE)'))
-        conn.execute(text(f'CREATE DATABASE "{name}"'))
-    admin.dispose()
-    yield base.set(database=name).render_as_string(hide_password=False)
+    return empty_database_url(request.param, tmp_path, "backup")
 
 
 def _head(output: str) -> str:

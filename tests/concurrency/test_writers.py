@@ -12,8 +12,7 @@ from collections.abc import Iterator
 from pathlib import Path
 
 import pytest
-from sqlalchemy import Engine, create_engine, select, text
-from sqlalchemy.engine import make_url
+from sqlalchemy import Engine, select, text
 from sqlalchemy.orm import Session
 
 from curation import ledger
@@ -21,26 +20,16 @@ from curation.db import make_engine, upgrade_to_head
 from curation.model import Event
 from curation.services import accounts, items
 from tests.concurrency.writer import COUPON, OPERATOR
-from tests.conftest import T0, require_postgres
+from tests.conftest import BACKENDS, T0, empty_database_url
 
 WRITER = Path(__file__).with_name("writer.py")
 WRITERS, MARKS_EACH, KILL_ROUNDS = 8, 6, 20
 
 
-@pytest.fixture(params=["sqlite", pytest.param("postgresql", marks=pytest.mark.postgres)])
+@pytest.fixture(params=BACKENDS)
 def database(request: pytest.FixtureRequest, tmp_path: Path) -> Iterator[str]:
     """An empty migrated database of its own, holding one coupon and one writer."""
-    if request.param == "sqlite":
-        url = f"sqlite:///{tmp_path / 'writers.db'}"
-    else:
-        base = make_url(require_postgres())
-        name = f"{base.database}_writers"
-        admin = create_engine(base.set(database="postgres"), isolation_level="AUTOCOMMIT")
-        with admin.connect() as conn:
-            conn.execute(text(f'DROP DATABASE IF EXISTS "{name}" WITH (FORCE)'))
-            conn.execute(text(f'CREATE DATABASE "{name}"'))
-        admin.dispose()
-        url = base.set(database=name).render_as_string(hide_password=False)
+    url = empty_database_url(request.param, tmp_path, "writers")
     engine = make_engine(url)
     upgrade_to_head(engine)
     with Session(engine) as session:

@@ -9,8 +9,7 @@ import pytest
 from alembic.autogenerate import compare_metadata
 from alembic.runtime.migration import MigrationContext
 from alembic.script import ScriptDirectory
-from sqlalchemy import Engine, create_engine, func, inspect, select, text
-from sqlalchemy.engine import make_url
+from sqlalchemy import Engine, func, inspect, select
 from sqlalchemy.orm import Session
 
 from curation import ledger
@@ -19,7 +18,7 @@ from curation.db import (
 )
 from curation.model import Base, Item, LedgerEntry
 from curation.services import accounts, events, items
-from tests.conftest import hours, require_postgres
+from tests.conftest import BACKENDS, empty_database_url, hours
 
 
 def test_one_head() -> None:
@@ -33,26 +32,12 @@ def test_models_match_migrations(engine: Engine) -> None:
         assert compare_metadata(context, Base.metadata) == []
 
 
-@pytest.fixture(params=["sqlite", pytest.param("postgresql", marks=pytest.mark.postgres)])
+@pytest.fixture(params=BACKENDS)
 def scratch(request: pytest.FixtureRequest, tmp_path) -> Iterator[Engine]:
     """An empty database of its own, so downgrades do not disturb the shared one."""
-    if request.param == "sqlite":
-        eng = make_engine(f"sqlite:///{tmp_path / 'round-trip.db'}")
-        yield eng
-        eng.dispose()
-        return
-    url = make_url(require_postgres())
-    name = f"{url.database}_migrations"
-    admin = create_engine(url.set(database="postgres"), isolation_level="AUTOCOMMIT")
-    with admin.connect() as conn:
-        conn.execute(text(f'DROP DATABASE IF EXISTS "{name}"'))
-        conn.execute(text(f'CREATE DATABASE "{name}"'))
-    eng = make_engine(url.set(database=name).render_as_string(hide_password=False))
+    eng = make_engine(empty_database_url(request.param, tmp_path, "migrations"))
     yield eng
     eng.dispose()
-    with admin.connect() as conn:
-        conn.execute(text(f'DROP DATABASE IF EXISTS "{name}"'))
-    admin.dispose()
 
 
 def _populate(engine: Engine) -> int:

@@ -8,6 +8,7 @@ a message and exit with status 2; `ledger verify` exits 1 when the ledger is bro
 from __future__ import annotations
 
 import json
+from datetime import datetime
 from collections.abc import Callable, Iterator
 from contextlib import contextmanager
 from pathlib import Path
@@ -28,7 +29,7 @@ from curation.db import (
     make_sessionmaker,
     upgrade_to_head,
 )
-from curation.errors import CurationError, NotADemoDatabase
+from curation.errors import CurationError, InvalidInput, NotADemoDatabase
 from curation.model import Derivation, Item, ItemKind, LedgerEntry
 
 DEFAULT_HOST, DEFAULT_PORT = "127.0.0.1", 5000
@@ -156,6 +157,17 @@ def command_session(ctx: click.Context, db_url: str | None) -> Iterator[Session]
         require_head(engine, url)
         with transaction(engine) as session:
             yield session
+
+
+def parse_moment(option: str, text: str) -> datetime:
+    """An ISO 8601 timestamp with its UTC offset, or an error naming the option."""
+    try:
+        moment = datetime.fromisoformat(text)
+    except ValueError:
+        raise InvalidInput(option, text, "an ISO 8601 timestamp with its UTC offset") from None
+    if moment.tzinfo is None:
+        raise InvalidInput(option, text, "a timestamp with its UTC offset, e.g. +01:00")
+    return moment
 
 
 @click.group(cls=CurationGroup)

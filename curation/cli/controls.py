@@ -3,14 +3,13 @@
 from __future__ import annotations
 
 import json
-from datetime import datetime
 from pathlib import Path
 
 import click
 from sqlalchemy import select
 
-from curation.cli import CommandError, command_session, db_option, main
-from curation.errors import InvalidInput, NotFound
+from curation.cli import CommandError, command_session, db_option, main, parse_moment
+from curation.errors import NotFound
 from curation.model import Event, Indicator, Study
 from curation.reports import controls as report
 from curation.services import controls as writes
@@ -22,16 +21,6 @@ def _study(session, code: str) -> Study:  # type: ignore[no-untyped-def]
     if study is None:
         raise NotFound(f"no study with code {code!r}")
     return study
-
-
-def _moment(text: str) -> datetime:
-    try:
-        moment = datetime.fromisoformat(text)
-    except ValueError:
-        raise InvalidInput("--at", text, "an ISO 8601 timestamp with its UTC offset") from None
-    if moment.tzinfo is None:
-        raise InvalidInput("--at", text, "a timestamp with its UTC offset, e.g. +01:00")
-    return moment
 
 
 @main.group("controls")
@@ -110,7 +99,7 @@ def reading_command(ctx: click.Context, db_url: str | None, study: str, control:
             raise NotFound(f"study {study} has no indicator {indicator!r}")
         writes.record_control_reading(
             session, actor=person_by_username(session, username), indicator=ind,
-            control=item_by_code(session, control), measured_at=_moment(at), value=value,
+            control=item_by_code(session, control), measured_at=parse_moment("--at", at), value=value,
             uncertainty=uncertainty, source=source)
     click.echo(f"Recorded {indicator} = {value:g} on {control}")
 

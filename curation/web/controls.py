@@ -9,7 +9,7 @@ from sqlalchemy import select
 from sqlalchemy.orm import Session
 
 from curation.errors import CurationError, InvalidInput
-from curation.model import Study
+from curation.model import Event, Study, StudyItem
 from curation.reports import controls, controls_pdf
 from curation.services import controls as control_writes
 from curation.services.common import item_by_code, person_by_username
@@ -56,6 +56,9 @@ def reading_forms(session: Session, report: controls.ControlsReport,
         built[name] = form
     built["reading"].control.choices = [(c.code, c.code) for c in report.controls]
     built["reading"].indicator.choices = [(i.code, i.name) for i in report.indicators]
+    if posted is None:  # a link from a control's item page or a step preselects them
+        built["reading"].control.data = request.args.get("control")
+        built["reading"].step.data = request.args.get("step", type=int)
     return built
 
 
@@ -64,11 +67,14 @@ def _record(session: Session, report: controls.ControlsReport, kind: str,
     actor = person_by_username(session, form.operator.data)
     if kind == "reading":
         indicator = next(i for i in report.indicators if i.code == form.indicator.data)
+        step = session.get(Event, form.step.data) if form.step.data else None
+        if form.step.data and step is None:
+            raise InvalidInput("step", form.step.data, "the number of a recorded event")
         control_writes.record_control_reading(
             session, actor=actor, indicator=indicator,
             control=item_by_code(session, form.control.data),
             measured_at=form.measured_at.data, value=form.value.data,
-            uncertainty=form.uncertainty.data, source=form.source.data or "")
+            uncertainty=form.uncertainty.data, step=step, source=form.source.data or "")
         return f"Recorded a reading of {indicator.name} on {form.control.data}"
     upload = form.file.data
     try:
@@ -111,6 +117,20 @@ def controls_page(code: str) -> str:
     session = db_session()
     report = controls.controls_report(session, code, depth)
     return _page(report, depth, reading_forms(session, report))
+
+
+@bp.get("/controls/<code>/reading")
+def reading_for(code: str) -> Response:
+    """Open the reading form of the study the control belongs to, control (and step) chosen."""
+    session = db_session()
+    control = item_by_code(session, code)
+    study = session.scalar(select(Study.code).join(StudyItem, StudyItem.study_id == Study.id)
+                           .where(StudyItem.item_id == control.id, StudyItem.role == "control")
+                           .order_by(Study.code).limit(1))
+    if study is None:
+        raise InvalidInput("control", code, "a control enrolled in a study")
+    return redirect(url_for("controls.controls_page", code=study, control=code,
+                            step=request.args.get("step", type=int), _anchor="enter-h"))
 
 
 @bp.get("/studies/<code>/controls.pdf")

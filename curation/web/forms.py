@@ -439,6 +439,8 @@ class ControlReadingForm(FlaskForm):
     value = FloatField("Value", validators=[_required("Value")])
     uncertainty = FloatField("Standard uncertainty", validators=[_required("Uncertainty"),
                                                                  NumberRange(min=0)])
+    step = IntegerField("Measured by step (event #)", validators=[Optional(), NumberRange(min=1)],
+                        description="The step that measured it, if it was logged at a station.")
     source = StringField("How it was measured", validators=[Optional(), Length(max=200)])
 
 

@@ -21,7 +21,9 @@ from werkzeug.wrappers import Response
 from curation import history
 from curation.audit.engine import audit_item
 from curation.errors import InvalidInput, NotFound
-from curation.model import Derivation, Event, Item, ItemKind, Location, Person, Placement, Station
+from curation.model import (
+    CONTROL_KINDS, Derivation, Event, Item, ItemKind, Location, Person, Placement, Station,
+)
 from curation.reports import lineage_svg
 from curation.services import images
 from curation.services.common import item_by_code
@@ -328,7 +330,8 @@ def item_page(code: str) -> str:
         view.tree, current_id=view.item.id, label=f"Lineage of {view.item.code}",
         href=lambda i: url_for("items.item_page", code=i.code))
     return render_template("items/item.html", v=view, picture=Markup(picture),
-                           files=images.files_with_images(db_session(), view.item.id))
+                           files=images.files_with_images(db_session(), view.item.id),
+                           control_kinds={k.value for k in CONTROL_KINDS})
 
 
 @bp.get("/events/<int:event_id>")

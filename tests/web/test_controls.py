@@ -2,9 +2,15 @@
 
 from __future__ import annotations
 
+import io
+
 import pytest
 
-from curation.services import controls, custody, items, studies
+from sqlalchemy import select
+
+from curation.model import Event
+from curation.services import controls, custody, events, items, studies
+from curation.services.common import item_by_code
 from tests.conftest import hours
 
 
@@ -65,7 +71,6 @@ def test_record_a_reading_and_refuse_a_bad_file(client, study, operator) -> None
     assert done.status_code == 302
     html = client.get("/studies/S-WEB/controls").get_data(as_text=True)
     assert html.count('class="verdict fail"') == 2
-    import io
     bad = {"import-operator": operator.username,
            "import-file": (io.BytesIO(b"control,indicator,measured_at,value,uncertainty\n"
                                       b"W-WEB,dust,2026-03-02 12:00,1,0.1\n"), "r.csv")}
@@ -75,3 +80,27 @@ def test_record_a_reading_and_refuse_a_bad_file(client, study, operator) -> None
     assert "line 2: measured_at" in refused.get_data(as_text=True)
     after = client.get("/studies/S-WEB/controls").get_data(as_text=True)
     assert after.count('class="verdict') == html.count('class="verdict')
+
+
+def test_a_reading_from_the_control_item_page_names_its_step(client, study, operator,
+                                                            session) -> None:
+    step = events.record_event(session, actor=operator, kind="step",
+                               item=item_by_code(session, "W-WEB"), occurred_at=hours(4),
+                               technique="sem-imaging")
+    session.commit()
+    item_page = client.get("/items/W-WEB").get_data(as_text=True)
+    assert "/controls/W-WEB/reading" in item_page
+    opened = client.get(f"/controls/W-WEB/reading?step={step.id}")
+    assert opened.status_code == 302 and "control=W-WEB" in opened.headers["Location"]
+    form = client.get(opened.headers["Location"]).get_data(as_text=True)
+    assert f'value="{step.id}"' in form
+    done = client.post("/studies/S-WEB/controls/reading", data={
+        "reading-operator": operator.username, "reading-control": "W-WEB",
+        "reading-indicator": "dust", "reading-measured_at": "2026-03-02T13:00",
+        "reading-measured_at-offset": "+00:00", "reading-value": "1.1",
+        "reading-uncertainty": "0.2", "reading-step": str(step.id)})
+    assert done.status_code == 302
+    reading = session.scalars(select(Event).where(Event.kind == "reading")
+                              .order_by(Event.id.desc())).first()
+    assert reading.details["step_id"] == step.id
+    assert client.get("/controls/G-WEB/reading").status_code == 400

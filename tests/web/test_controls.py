@@ -5,7 +5,6 @@ from __future__ import annotations
 import io
 
 import pytest
-
 from sqlalchemy import select
 
 from curation.model import Event

@@ -104,9 +104,20 @@ def entry_hash(
     return hashlib.sha256(canonical(content).encode("utf-8")).hexdigest()
 
 
+#: columns whose value the ledger keeps only as a SHA-256 digest (it is never erased, and a
+#: password hash should not be readable by everyone who may read the ledger)
+SECRET_COLUMNS = frozenset({("people", "password_hash")})
+
+
+def _value(table: Table, name: str, value: Any) -> Any:
+    if value is not None and (table.name, name) in SECRET_COLUMNS:
+        return "sha256:" + hashlib.sha256(str(value).encode("utf-8")).hexdigest()
+    return value
+
+
 def row_state(table: Table, row: Mapping[str, Any]) -> str:
-    """Canonical JSON of a row's columns, keyed by column name."""
-    return canonical({c.name: row[c.name] for c in table.columns})
+    """Canonical JSON of a row's columns, keyed by column name (secrets as digests)."""
+    return canonical({c.name: _value(table, c.name, row[c.name]) for c in table.columns})
 
 
 def row_key(table: Table, row: Mapping[str, Any]) -> str:
@@ -268,7 +279,7 @@ def _same_but_newer(table: Table, row: Mapping[str, Any], recorded: str) -> bool
     """
     state = json.loads(recorded)
     for column in table.columns:
-        value = plain(row[column.name])
+        value = plain(_value(table, column.name, row[column.name]))
         if column.name in state:
             if canonical(state[column.name]) != canonical(value):
                 return False

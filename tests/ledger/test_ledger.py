@@ -194,3 +194,20 @@ def test_columns_added_by_a_later_migration_keep_old_rows_intact(session, make_i
     session.connection().execute(text("UPDATE items SET volume_um3 = 5 WHERE id = :i"),
                                  {"i": item.id})
     assert ("row-differs", "items", str(item.id), None) in _problems(session)
+
+
+def test_password_hashes_reach_the_ledger_only_as_digests(session) -> None:
+    person = accounts.add_person(session, actor="test", username="pw-holder", name="P")
+    person.password_hash = "$argon2id$v=19$m=19456,t=2,p=1$c2FsdA$aGFzaA"
+    session.flush()
+    state = session.scalars(select(LedgerEntry.state).where(
+        LedgerEntry.table_name == "people", LedgerEntry.row_id == str(person.id))
+        .order_by(LedgerEntry.seq.desc())).first()
+    assert "argon2id" not in state
+    # The digest is SHA-256 of the stored hash, so a swapped hash is still caught (hashlib).
+    expected = hashlib.sha256(person.password_hash.encode()).hexdigest()
+    assert json.loads(state)["password_hash"] == "sha256:" + expected
+    assert ledger.verify(session).ok
+    session.connection().execute(text("UPDATE people SET password_hash = 'x' WHERE id = :i"),
+                                 {"i": person.id})
+    assert ("row-differs", "people", str(person.id), None) in _problems(session)

@@ -13,6 +13,8 @@ ENVIRONMENT = {
     "CURATION_DATABASE_URL": "SQLAlchemy URL of the database (default: SQLite file in CURATION_HOME)",
     "CURATION_HOME": "data folder for the default SQLite databases (default: per-user data folder)",
     "CURATION_SECRET_KEY": "secret key for signed cookies and CSRF tokens",
+    "CURATION_ENV": "'production' refuses to start without a strong CURATION_SECRET_KEY",
+    "CURATION_SECURE_COOKIES": "'1' sends the session cookie only over HTTPS (behind TLS)",
     "CURATION_DATA_ROOTS": "folders (separated like PATH) where registered data files must lie",
 }
 
@@ -52,3 +54,16 @@ def secret_key(environ: Mapping[str, str] | None = None) -> str | None:
     """The configured secret key, if any."""
     environ = os.environ if environ is None else environ
     return environ.get("CURATION_SECRET_KEY")
+
+
+def environment_name(environ: Mapping[str, str] | None = None) -> str:
+    """CURATION_ENV: 'production', or 'development' when unset."""
+    environ = os.environ if environ is None else environ
+    return environ.get("CURATION_ENV", "development").strip().lower()
+
+
+def secure_cookies(environ: Mapping[str, str] | None = None) -> bool:
+    """Whether the session cookie is marked Secure (CURATION_SECURE_COOKIES=1, or production)."""
+    environ = os.environ if environ is None else environ
+    flag = environ.get("CURATION_SECURE_COOKIES", "").strip().lower()
+    return flag in ("1", "true", "yes") or (flag == "" and environment_name(environ) == "production")

@@ -28,6 +28,8 @@ from curation.model import LedgerEntry, Person
 GENESIS_HASH = "0" * 64
 LEDGER_TABLE = LedgerEntry.__tablename__
 ACTOR_KEY = "curation.actor"
+#: the logged-in account of a web request; when set, every entry names it as the actor
+AUTHENTICATED_KEY = "curation.authenticated"
 
 
 #: the PostgreSQL advisory lock every writing transaction holds (any constant would do)
@@ -42,7 +44,9 @@ def attribute(session: Session, actor: Person | str) -> None:
     serialised from that point: their checks see each other's committed rows and the ledger
     chain never forks. SQLite gets the same from BEGIN IMMEDIATE (see curation.db).
     """
-    session.info[ACTOR_KEY] = actor if isinstance(actor, str) else actor.username
+    named = actor if isinstance(actor, str) else actor.username
+    # The person who logged in answers for the write, whoever the form names as operator.
+    session.info[ACTOR_KEY] = session.info.get(AUTHENTICATED_KEY) or named
     serialise_writers(session)
 
 

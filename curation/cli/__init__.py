@@ -196,6 +196,9 @@ def serve(ctx: click.Context, db_url: str | None, host: str, port: int) -> None:
     url = resolve_url(ctx, db_url, config.database_url)
     with engine_for(url) as engine:
         require_head(engine, url)
+        from curation.cli.users import ensure_admin
+
+        ensure_admin(engine)
     run_server(url, host, port)
 
 
@@ -415,6 +418,7 @@ from curation.cli import bench as _bench, imports as _imports  # noqa: E402,F401
 from curation.cli import controls as _controls  # noqa: E402,F401
 from curation.cli import backup as _backup  # noqa: E402,F401
 from curation.cli import allocations as _allocations  # noqa: E402,F401
+from curation.cli import users as _users  # noqa: E402,F401
 
 if __name__ == "__main__":
     main()

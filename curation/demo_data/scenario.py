@@ -15,7 +15,7 @@ from dataclasses import dataclass, field
 from sqlalchemy import func, select
 from sqlalchemy.orm import InstrumentedAttribute, Session
 
-from curation.demo_data import lab_a, lab_b, second_loan
+from curation.demo_data import lab_a, lab_b, second_loan, users
 from curation.demo_data.scene import PlantedProblem, Scene, minutes
 from curation.demo_data.setting import (
     BODY,
@@ -230,6 +230,7 @@ SECTIONS = (
     second_loan.return_lamella,
     second_loan.plant_missing_needle,
     second_loan.transfer_needles,
+    users.open_logins,
 )
 
 

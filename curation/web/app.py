@@ -72,6 +72,9 @@ def build_app(config: Mapping[str, Any] | None = None) -> Flask:
     from curation.web import allocations
 
     app.register_blueprint(allocations.bp)
+    from curation.web import auth
+
+    auth.install(app)
     return app
 
 
@@ -81,8 +84,27 @@ def _settings(config: Mapping[str, Any] | None) -> dict[str, Any]:
     values["SECRET_KEY"] = settings.secret_key() or secrets.token_hex(32)
     # Uploads (images, small data files) up to 256 MiB; larger files are registered by path.
     values["MAX_CONTENT_LENGTH"] = 256 * 1024 * 1024
+    # Session cookie: never readable by scripts, not sent on cross-site posts.
+    values.update(SESSION_COOKIE_HTTPONLY=True, SESSION_COOKIE_SAMESITE="Lax",
+                  SESSION_COOKIE_SECURE=settings.secure_cookies())
     values.update(config or {})
+    check_secret_key(values.get("CURATION_ENV") or settings.environment_name(),
+                     (config or {}).get("SECRET_KEY") or settings.secret_key() or "")
     return values
+
+
+#: shortest secret key accepted in production
+MIN_SECRET_KEY = 32
+
+
+def check_secret_key(environment: str, key: str) -> None:
+    """Refuse to start in production (CURATION_ENV=production) without a strong secret key."""
+    if environment != "production":
+        return
+    if len(key) < MIN_SECRET_KEY or len(set(key)) < 8:
+        raise RuntimeError("CURATION_ENV=production needs CURATION_SECRET_KEY set to a random "
+                           f"string of at least {MIN_SECRET_KEY} characters "
+                           "(python -c 'import secrets; print(secrets.token_hex(32))')")
 
 
 def _database(values: Mapping[str, Any]) -> Database:

@@ -28,6 +28,7 @@ from curation.services.common import item_by_code, location_by_code, person_by_u
 from curation.services.environment import ImportRejected
 from curation.web import forms as f
 from curation.web.app import db_session
+from curation.web.auth import may_write
 from curation.web.items import placement_chain
 
 bp = Blueprint("custody", __name__, url_prefix="/custody")
@@ -187,6 +188,7 @@ def record(code: str, action: str) -> Response | tuple[str, int]:
         abort(404)
     session = db_session()
     item = item_by_code(session, code)
+    may_write([item])
     forms = desk_forms(session, posted=action)
     form = forms[action]
     if not form.validate_on_submit():

@@ -26,6 +26,7 @@ from curation.services import files, images
 from curation.services.common import item_by_code, person_by_username
 from curation.web import forms as f
 from curation.web.app import db_session
+from curation.web.auth import may_write
 
 bp = Blueprint("files", __name__)
 
@@ -160,6 +161,7 @@ def add_file(code: str, kind: str) -> BaseResponse | tuple[str, int]:
         abort(404)
     session = db_session()
     item = item_by_code(session, code)
+    may_write([item])
     forms = file_forms(session, item, posted=kind)
     form = forms[kind]
     if not form.validate_on_submit():

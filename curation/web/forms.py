@@ -10,6 +10,7 @@ from collections.abc import Sequence
 from datetime import datetime, timedelta, timezone
 from typing import Any
 
+from flask import g
 from flask_wtf import FlaskForm
 from flask_wtf.file import FileField, FileRequired
 from markupsafe import Markup, escape
@@ -58,11 +59,21 @@ def choices(pairs: Any) -> list[Any]:
 NOBODY = choice("", "— choose —")
 
 
+#: roles that may record only as themselves
+SELF_ONLY = ("analyst", "station")
+
+
 def operator_choices(session: Session) -> list[tuple[str, str]]:
-    """Active people as (username, "name (username)"), after a blank first choice."""
+    """Active people as (username, "name (username)"): the logged-in person first (chosen by
+    default), then a blank and everyone else; analysts and stations only themselves."""
+    user: Person | None = g.get("user")
+    if user is not None and user.role in SELF_ONLY:
+        return [choice(user.username, f"{user.name} ({user.username})")]
     people = session.execute(select(Person.username, Person.name).where(Person.is_active)
-                             .order_by(Person.name, Person.username))
-    return [NOBODY, *(choice(u, f"{n} ({u})") for u, n in people)]
+                             .order_by(Person.name, Person.username)).all()
+    me = user.username if user is not None else None
+    mine = [choice(u, f"{n} ({u})") for u, n in people if u == me]
+    return [*mine, NOBODY, *(choice(u, f"{n} ({u})") for u, n in people if u != me)]
 
 
 def location_choices(session: Session) -> list[tuple[str, str]]:

@@ -29,6 +29,7 @@ from curation.techniques import RangeWarning, Technique, ValidationFailed
 from curation.techniques.spec import Field as Spec
 from curation.web import forms as f
 from curation.web.app import db_session
+from curation.web.auth import may_write
 
 bp = Blueprint("stations", __name__, url_prefix="/stations")
 
@@ -322,6 +323,7 @@ def _children(session: Session, form: StepFormBase) -> steps.Children | None:
 def _record(session: Session, desk: Desk, form: StepFormBase) -> steps.StepResult:
     """The one service call of a posted step."""
     assert desk.technique is not None
+    may_write(desk.items, desk.station)
     return steps.record_step(
         session, actor=person_by_username(session, form.operator.data),
         station=desk.station, technique=desk.technique.code, items=desk.items,

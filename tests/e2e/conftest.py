@@ -28,6 +28,10 @@ CHROMIUM_ARGS = [
     "--disable-component-update", "--disable-sync", "--no-first-run",
 ]
 T0 = datetime(2026, 3, 2, 8, 0, tzinfo=timezone.utc)
+#: the scene's administrator login (username, password)
+LOGIN = ("e2e-admin", "e2e-admin-password")
+#: the demo's administrator login, as the README lists it
+DEMO_LOGIN = ("demo-admin", "demo-admin-pass")
 
 
 def at(hours: float) -> datetime:
@@ -59,6 +63,8 @@ class Scene:
 def build_scene(session: Session) -> Scene:
     """A particle in a capsule, a lamella and a needle cut from it, events and one correction."""
     op = accounts.add_person(session, actor="setup", username="opa", name="Operator A")
+    accounts.create_account(session, actor="setup", username=LOGIN[0], name="Browser Admin",
+                            role="admin", password=LOGIN[1])
     room = stations.add_location(session, actor=op, code="RM-2", name="Beam room 2",
                                  kind="instrument")
     fib = stations.add_instrument(session, actor=op, code="FIB-A", name="Dual-beam A",
@@ -191,18 +197,36 @@ def browser() -> Iterator[Any]:
 @pytest.fixture
 def page(browser: Any, live_server: str) -> Iterator[Any]:
     """A fresh browser tab on the scene's server; fails the test on any console error."""
-    yield from _tab(browser, live_server)
+    yield from _tab(browser, live_server, LOGIN)
 
 
 @pytest.fixture
 def demo_page(browser: Any, demo_server: str) -> Iterator[Any]:
     """A fresh browser tab on the demo's server; fails the test on any console error."""
-    yield from _tab(browser, demo_server)
+    yield from _tab(browser, demo_server, DEMO_LOGIN)
 
 
-def _tab(browser: Any, base_url: str) -> Iterator[Any]:
+@pytest.fixture
+def guest_page(browser: Any, demo_server: str) -> Iterator[Any]:
+    """A fresh browser tab on the demo's server, not logged in."""
+    yield from _tab(browser, demo_server, None)
+
+
+def log_in(tab: Any, username: str, password: str) -> None:
+    """Log in through the login form, as a person would."""
+    tab.goto("/login")
+    tab.get_by_label("Username").fill(username)
+    tab.get_by_label("Password").fill(password)
+    tab.get_by_role("button", name="Log in").click()
+
+
+def _tab(browser: Any, base_url: str, login: tuple[str, str] | None = LOGIN) -> Iterator[Any]:
     context = browser.new_context(base_url=base_url, viewport={"width": 1280, "height": 900})
     tab = context.new_page()
+    if login is not None:
+        # Once per browser context: the session cookie then carries every later page.
+        log_in(tab, *login)
+        tab.wait_for_url(lambda url: "/login" not in url)
     problems: list[str] = []
     tab.on("console", lambda msg: problems.append(msg.text) if msg.type == "error" else None)
     tab.on("pageerror", lambda exc: problems.append(str(exc)))

@@ -17,6 +17,7 @@ from curation import create_app, ledger
 from curation.model import EnvironmentReading, Event, Item, Location, Person
 from curation.services import accounts, custody, stations
 from tests.conftest import hours
+from tests.web.conftest import logged_in
 from tests.web.test_items import page
 
 
@@ -222,9 +223,9 @@ def test_refusals_name_the_field_and_write_nothing(
 
 
 def test_a_post_without_the_form_token_is_refused(connection: Any, desk: Desk,
-                                                  session: Session) -> None:
+                                                  session: Session, admin: Person) -> None:
     guarded = create_app({"DB_BIND": connection, "TESTING": True, "SECRET_KEY": "t"})
-    client = guarded.test_client()
+    client = logged_in(guarded, admin)
     response = client.post("/custody/CU-1/release", data={
         "release-operator": "ann", "release-to": "ben", **stamp("release")})
     assert response.status_code == 400

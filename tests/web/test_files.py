@@ -17,6 +17,7 @@ from curation import create_app
 from curation.model import Item, Person
 from curation.services import files
 from tests.services.test_images import encoded, gradient16
+from tests.web.conftest import logged_in
 
 
 def _image_post(client: FlaskClient, code: str, operator: Person, data: io.BytesIO,
@@ -83,12 +84,12 @@ def test_register_by_path(client: FlaskClient, operator: Person,
     assert bad.status_code == 400 and "without &#39;..&#39;" in bad.text
 
 
-def test_oversized_upload_gets_a_clear_413(connection: Any, operator: Person,
+def test_oversized_upload_gets_a_clear_413(connection: Any, operator: Person, admin: Person,
                                            make_item: Callable[..., Item]) -> None:
     app = create_app({"DB_BIND": connection, "TESTING": True, "SECRET_KEY": "t",
                       "WTF_CSRF_ENABLED": False, "MAX_CONTENT_LENGTH": 2048})
     item = make_item()
-    answer = _image_post(app.test_client(), item.code, operator,
+    answer = _image_post(logged_in(app, admin), item.code, operator,
                          io.BytesIO(b"\x00" * 10_000), "big.png")
     assert answer.status_code == 413
     assert "File too large" in answer.text and "2 KiB" in answer.text

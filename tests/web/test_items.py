@@ -19,6 +19,7 @@ from curation import create_app
 from curation.model import Event, Item, Person
 from curation.services import events, items, stations
 from curation.errors import RuleViolation
+from curation.web import auth
 from curation.web.app import database, db_session
 from tests.conftest import hours
 
@@ -300,7 +301,11 @@ def test_settings_come_from_code_then_environment_then_mapping(
 
 
 def test_a_request_commits_on_success_and_rolls_back_on_a_domain_error(
-        app: Flask, client: FlaskClient, session: Session) -> None:
+        app: Flask, client: FlaskClient, session: Session, monkeypatch: pytest.MonkeyPatch) -> None:
+    # Routes added here need an access rule like every other route.
+    monkeypatch.setitem(auth.ACCESS, "keep", auth.EVERYONE)
+    monkeypatch.setitem(auth.ACCESS, "refuse", auth.EVERYONE)
+
     def write(code: str, refuse: bool) -> str:
         items.register_item(db_session(), actor="web-test", code=code, kind="particle",
                             created_at=hours(0))
@@ -319,7 +324,11 @@ def test_a_request_commits_on_success_and_rolls_back_on_a_domain_error(
 def test_an_engine_can_be_passed_in(engine: Any) -> None:
     app = create_app({"DB_BIND": engine, "TESTING": True, "SECRET_KEY": "t"})
     assert database(app).engine is None
-    assert app.test_client().get("/items").status_code == 200
+    client = app.test_client()
+    with client.session_transaction() as cookie:
+        cookie["user_id"] = 1  # no account with a role: looked up through the engine
+    assert client.get("/items").status_code == 302
+    assert client.get("/login").status_code == 200
 
 
 # ---- cost does not grow with the data -------------------------------------------------

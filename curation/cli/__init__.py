@@ -417,6 +417,7 @@ from curation.cli import reports as _reports  # noqa: E402,F401
 from curation.cli import bench as _bench, imports as _imports  # noqa: E402,F401,I001
 from curation.cli import controls as _controls  # noqa: E402,F401
 from curation.cli import backup as _backup  # noqa: E402,F401
+from curation.cli import exchange as _exchange  # noqa: E402,F401
 from curation.cli import allocations as _allocations  # noqa: E402,F401
 from curation.cli import users as _users  # noqa: E402,F401
 

@@ -207,3 +207,36 @@ def test_a_login_rehashes_a_password_stored_with_weaker_parameters(session: Sess
     assert accounts.authenticate(session, "old", "an old password here") is person
     # Parameters as OWASP's Password Storage Cheat Sheet gives for Argon2id (19 MiB, t=2, p=1).
     assert person.password_hash.startswith("$argon2id$v=19$m=19456,t=2,p=1$")
+
+
+def test_markup_stored_in_every_kind_of_text_comes_back_escaped(client: Any, session: Session,
+                                                                make_item: Any,
+                                                                operator: Person) -> None:
+    from curation.services import controls, custody, events, stations, studies
+
+    place = stations.add_location(session, actor=operator, code="XSS-ROOM", name=PAYLOAD,
+                                  kind="glovebox", laboratory=PAYLOAD)
+    item = make_item(code="XSS-1", material=PAYLOAD, description=PAYLOAD, is_pristine=True)
+    study = studies.create_study(session, actor=operator, code="XSS-S", title=PAYLOAD)
+    studies.enrol(session, actor=operator, study=study, item=item)
+    step = events.record_event(session, actor=operator, kind="step", item=item,
+                               occurred_at=item.created_at, technique="sem-imaging",
+                               summary=PAYLOAD, note=PAYLOAD, details={PAYLOAD: PAYLOAD})
+    custody.handle(session, actor=operator, item=item, environment="air",
+                   start=item.created_at, end=item.created_at, location=place, note=PAYLOAD)
+    witness = make_item(code="XSS-W", kind="witness-coupon")
+    studies.enrol(session, actor=operator, study=study, item=witness, role="control")
+    ind = controls.define_indicator(session, actor=operator, study=study, code="xss", name=PAYLOAD,
+                                    unit=PAYLOAD, baseline_value=1, baseline_uncertainty=1,
+                                    threshold_kind="absolute", threshold_value=0.5,
+                                    baseline_source=PAYLOAD)
+    controls.record_control_reading(session, actor=operator, indicator=ind, control=witness,
+                                    measured_at=item.created_at, value=3, uncertainty=0.1,
+                                    source=PAYLOAD)
+    session.commit()
+    for path in ("/items/XSS-1", f"/events/{step.id}", "/items?q=XSS", "/findings",
+                 "/studies/XSS-S/controls", "/studies", "/custody/XSS-1"):
+        page = client.get(path)
+        assert page.status_code == 200, path
+        assert "<script>alert(1)" not in page.text, path
+        assert "&lt;script&gt;alert(1)" in page.text, path

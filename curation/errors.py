@@ -17,6 +17,14 @@ class InvalidInput(CurationError):
         super().__init__(f"{field}: {value!r} is not allowed ({allowed})")
 
 
+class ImportRejected(InvalidInput):
+    """A file import refused whole; `problems` names every bad row with its line."""
+
+    def __init__(self, problems: list[str]) -> None:
+        self.problems = problems
+        super().__init__("file", f"{len(problems)} bad row(s)", "; ".join(problems[:20]))
+
+
 class NaiveTimestamp(InvalidInput):
     """A timestamp without a timezone: we cannot tell which instant it means."""
 

@@ -164,11 +164,6 @@ def _object_row(obj: Any) -> tuple[Table, dict[str, Any]]:
     return table, row
 
 
-def _order(obj: Any) -> tuple[str, str]:
-    table, row = _object_row(obj)
-    return table.name, row_key(table, row).zfill(20)
-
-
 @event.listens_for(Session, "before_flush")
 def _refuse_deletes(session: Session, _ctx: UOWTransaction, _instances: Any) -> None:
     if session.deleted:
@@ -180,12 +175,11 @@ def _refuse_deletes(session: Session, _ctx: UOWTransaction, _instances: Any) -> 
 def _ledger_after_flush(session: Session, _ctx: UOWTransaction) -> None:
     changed = [(o, "insert") for o in session.new]
     changed += [(o, "update") for o in session.dirty if session.is_modified(o)]
-    changed = [(o, a) for o, a in changed if isinstance(o, Base) and not isinstance(o, LedgerEntry)]
-    changed.sort(key=lambda pair: (pair[1] == "update", _order(pair[0])))
-    rows = []
-    for obj, action in changed:
-        table, row = _object_row(obj)
-        rows.append((table, action, row))
+    rows = [(table, action, row) for obj, action in changed
+            if isinstance(obj, Base) and not isinstance(obj, LedgerEntry)
+            for table, row in [_object_row(obj)]]
+    # Inserts first, then by table and key, so the same flush always chains the same way.
+    rows.sort(key=lambda r: (r[1] == "update", r[0].name, row_key(r[0], r[2]).zfill(20)))
     append_rows(session, rows)
 
 

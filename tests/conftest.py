@@ -148,3 +148,16 @@ def make_event(session: Session, operator: Person) -> Callable[..., Event]:
         return events.record_event(session, actor=operator, **fields)
 
     return make
+
+
+@pytest.fixture(scope="session")
+def demo_url(tmp_path_factory: pytest.TempPathFactory) -> str:
+    """A demo database built once by `curation demo --no-serve`, for tests that only read it."""
+    from click.testing import CliRunner
+
+    from curation.cli import main
+
+    url = f"sqlite:///{tmp_path_factory.mktemp('demo') / 'demo.db'}"
+    result = CliRunner().invoke(main, ["demo", "--no-serve", "--db", url])
+    assert result.exit_code == 0, result.output
+    return url

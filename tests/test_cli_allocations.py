@@ -6,18 +6,9 @@ import csv
 import io
 import json
 
-import pytest
 from click.testing import CliRunner
 
 from curation.cli import main
-
-
-@pytest.fixture(scope="module")
-def demo_url(tmp_path_factory) -> str:
-    url = f"sqlite:///{tmp_path_factory.mktemp('alloc') / 'demo.db'}"
-    result = CliRunner().invoke(main, ["demo", "--no-serve", "--db", url])
-    assert result.exit_code == 0, result.output
-    return url
 
 
 def _run(url: str, *args: str):

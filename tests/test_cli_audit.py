@@ -4,18 +4,9 @@ from __future__ import annotations
 
 import json
 
-import pytest
 from click.testing import CliRunner
 
 from curation.cli import main
-
-
-@pytest.fixture(scope="module")
-def demo_url(tmp_path_factory) -> str:
-    url = f"sqlite:///{tmp_path_factory.mktemp('audit') / 'demo.db'}"
-    result = CliRunner().invoke(main, ["demo", "--no-serve", "--db", url])
-    assert result.exit_code == 0, result.output
-    return url
 
 
 def _audit(url: str, *args: str):

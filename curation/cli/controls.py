@@ -9,18 +9,11 @@ import click
 from sqlalchemy import select
 
 from curation.cli import CommandError, command_session, db_option, main, parse_moment
-from curation.errors import NotFound
-from curation.model import Event, Indicator, Study
+from curation.errors import ImportRejected, NotFound
+from curation.model import Event, Indicator
 from curation.reports import controls as report
 from curation.services import controls as writes
-from curation.services.common import item_by_code, person_by_username
-
-
-def _study(session, code: str) -> Study:  # type: ignore[no-untyped-def]
-    study = session.scalar(select(Study).where(Study.code == code))
-    if study is None:
-        raise NotFound(f"no study with code {code!r}")
-    return study
+from curation.services.common import item_by_code, person_by_username, study_by_code
 
 
 @main.group("controls")
@@ -49,7 +42,7 @@ def indicator_command(ctx: click.Context, db_url: str | None, study: str, code: 
     """Define indicator CODE of STUDY with its baseline and threshold."""
     with command_session(ctx, db_url) as session:
         writes.define_indicator(
-            session, actor=person_by_username(session, username), study=_study(session, study),
+            session, actor=person_by_username(session, username), study=study_by_code(session, study),
             code=code, name=name, unit=unit, baseline_value=baseline,
             baseline_uncertainty=uncertainty, threshold_kind=threshold_kind,
             threshold_value=threshold, baseline_source=source)
@@ -72,7 +65,7 @@ def link_command(ctx: click.Context, db_url: str | None, study: str, control: st
         if event_id is not None and event is None:
             raise NotFound(f"no event {event_id}")
         writes.link_control(session, actor=person_by_username(session, username),
-                            study=_study(session, study), control=item_by_code(session, control),
+                            study=study_by_code(session, study), control=item_by_code(session, control),
                             sample=item_by_code(session, sample) if sample else None, event=event)
     click.echo(f"Linked {control}")
 
@@ -94,7 +87,7 @@ def reading_command(ctx: click.Context, db_url: str | None, study: str, control:
     """Record a reading of INDICATOR on CONTROL."""
     with command_session(ctx, db_url) as session:
         ind = session.scalar(select(Indicator).where(
-            Indicator.study_id == _study(session, study).id, Indicator.code == indicator))
+            Indicator.study_id == study_by_code(session, study).id, Indicator.code == indicator))
         if ind is None:
             raise NotFound(f"study {study} has no indicator {indicator!r}")
         writes.record_control_reading(
@@ -118,9 +111,9 @@ def import_command(ctx: click.Context, db_url: str | None, study: str, file: Pat
         with command_session(ctx, db_url) as session:
             rows = writes.import_control_readings_csv(
                 session, actor=person_by_username(session, username),
-                study=_study(session, study), text=file.read_text(encoding="utf-8-sig"),
+                study=study_by_code(session, study), text=file.read_text(encoding="utf-8-sig"),
                 source=file.name)
-    except writes.ImportRejected as exc:
+    except ImportRejected as exc:
         raise CommandError("nothing imported:\n  " + "\n  ".join(exc.problems)) from exc
     click.echo(f"Imported {len(rows)} reading(s) from {file}")
 

@@ -6,7 +6,7 @@ from fpdf import FPDF
 
 from curation.reports import allocation_tables
 from curation.reports.allocation import AllocationReportData
-from curation.reports.lineage_pdf import _heading, _table, latin
+from curation.reports.pdf import document, heading, latin, table
 
 #: the columns printed for each table (the CSV has them all)
 PRINTED = {
@@ -53,14 +53,9 @@ def _identity(pdf: FPDF, r: AllocationReportData) -> None:
 
 def render(r: AllocationReportData) -> bytes:
     """The whole report as PDF bytes."""
-    pdf = FPDF(orientation="landscape", format="A4")
-    pdf.set_auto_page_break(auto=True, margin=12)
-    pdf.add_page()
-    pdf.set_font("Helvetica", "B", 16)
-    pdf.multi_cell(0, 9, latin(f"Allocation report: {r.allocation.reference}"),
-                   new_x="LMARGIN", new_y="NEXT")
+    pdf = document(f"Allocation report: {r.allocation.reference}")
     _identity(pdf, r)
     for name, rows in allocation_tables.tables(r).items():
-        _heading(pdf, TITLES[name])
-        _table(pdf, rows, PRINTED[name])
+        heading(pdf, TITLES[name])
+        table(pdf, rows, PRINTED[name])
     return bytes(pdf.output())

@@ -12,8 +12,8 @@ from sqlalchemy.orm import Session
 
 from curation.audit import contamination, engine
 from curation.audit.findings import Finding
-from curation.errors import NotFound
 from curation.model import Disposition, Event, Indicator, Item, Study, StudyItem
+from curation.services.common import study_by_code
 
 #: how far the tracing follows shared exposures from a failed control by default
 DEFAULT_DEPTH = 1
@@ -58,9 +58,7 @@ def _controls(session: Session, study: Study) -> list[Item]:
 
 def controls_report(session: Session, study_code: str, depth: int = DEFAULT_DEPTH) -> ControlsReport:
     """Readings, verdicts, failures and traced items for one study."""
-    study = session.scalar(select(Study).where(Study.code == study_code))
-    if study is None:
-        raise NotFound(f"no study with code {study_code!r}")
+    study = study_by_code(session, study_code)
     report = ControlsReport(study, list(session.scalars(
         select(Indicator).where(Indicator.study_id == study.id).order_by(Indicator.code))),
         _controls(session, study))

@@ -4,10 +4,8 @@ from __future__ import annotations
 
 from typing import Any
 
-from fpdf import FPDF
-
 from curation.reports.controls import ControlsReport
-from curation.reports.lineage_pdf import _heading, _table, latin
+from curation.reports.pdf import document, heading, table
 
 
 def reading_rows(r: ControlsReport) -> list[dict[str, Any]]:
@@ -31,21 +29,16 @@ def risk_rows(r: ControlsReport) -> list[dict[str, Any]]:
 
 def render(r: ControlsReport) -> bytes:
     """The whole controls report as PDF bytes."""
-    pdf = FPDF(orientation="landscape", format="A4")
-    pdf.set_auto_page_break(auto=True, margin=12)
-    pdf.add_page()
-    pdf.set_font("Helvetica", "B", 16)
-    pdf.multi_cell(0, 9, latin(f"Contamination controls: {r.study.code}"), new_x="LMARGIN",
-                   new_y="NEXT")
-    _heading(pdf, "Indicators")
-    _table(pdf, [{"code": i.code, "name": i.name, "unit": i.unit,
+    pdf = document(f"Contamination controls: {r.study.code}")
+    heading(pdf, "Indicators")
+    table(pdf, [{"code": i.code, "name": i.name, "unit": i.unit,
                   "baseline": f"{i.baseline_value:g} +/- {i.baseline_uncertainty:g}",
                   "threshold": f"{i.threshold_kind} {i.threshold_value:g}",
                   "source": i.baseline_source} for i in r.indicators],
            ["code", "name", "unit", "baseline", "threshold", "source"])
-    _heading(pdf, "Readings")
-    _table(pdf, reading_rows(r), ["control", "indicator", "measured", "value", "unit", "z",
+    heading(pdf, "Readings")
+    table(pdf, reading_rows(r), ["control", "indicator", "measured", "value", "unit", "z",
                                   "limit", "verdict"])
-    _heading(pdf, "Items that shared an exposure with a failed control")
-    _table(pdf, risk_rows(r), ["failure", "item", "kind", "depth", "linked by"])
+    heading(pdf, "Items that shared an exposure with a failed control")
+    table(pdf, risk_rows(r), ["failure", "item", "kind", "depth", "linked by"])
     return bytes(pdf.output())

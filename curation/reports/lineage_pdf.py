@@ -1,26 +1,22 @@
 """The lineage report as a PDF (fpdf2: pure Python, no system libraries).
 
-The built-in PDF fonts cover Latin-1 only, so text is folded to it (e⁻ becomes e-). The tree
-is embedded as a PNG drawn from the same layout as the page's SVG; a family too large for a
+The tree is embedded as a PNG drawn from the same layout as the page's SVG; a family too large for a
 page gets the item table instead of a picture.
 """
 
 from __future__ import annotations
 
 import io
-from typing import Any
 
 from fpdf import FPDF
-from fpdf.fonts import FontFace
 from PIL import Image
 
 from curation.reports import lineage_tables, plots
 from curation.reports.lineage import LineageReport
+from curation.reports.pdf import document, heading, latin, table
 
 #: beyond this many leaves the picture would be unreadable on paper
 MAX_TREE_ROWS = 60
-FOLD = str.maketrans({"⁻": "-", "²": "2", "³": "3", "—": "-", "–": "-", "·": ".", "→": "->",
-                      "≈": "~", "…": "...", "▶": ">"})
 #: the columns printed for each table (the CSV has them all)
 PRINTED = {
     "items": ["code", "kind", "status", "parent", "held_in", "last_place"],
@@ -40,29 +36,6 @@ TITLES = {"items": "Every item of the family", "steps": "Steps, doses and data f
           "controls": "Controls that travelled with it", "findings": "Findings (particle)",
           "dose_budget": "Exposure and dose budget (particle)",
           "mass_budget": "Mass budget (ug)"}
-
-
-def latin(text: Any) -> str:
-    """Text the built-in fonts can print."""
-    return str(text).translate(FOLD).encode("latin-1", "replace").decode("latin-1")
-
-
-def _heading(pdf: FPDF, text: str) -> None:
-    pdf.set_font("Helvetica", "B", 13)
-    pdf.ln(3)
-    pdf.multi_cell(0, 7, latin(text), new_x="LMARGIN", new_y="NEXT")
-    pdf.set_font("Helvetica", "", 8)
-
-
-def _table(pdf: FPDF, rows: list[dict[str, Any]], columns: list[str]) -> None:
-    if not rows:
-        pdf.multi_cell(0, 5, "None recorded.", new_x="LMARGIN", new_y="NEXT")
-        return
-    with pdf.table(headings_style=FontFace(emphasis="BOLD"), line_height=4,
-                   text_align="LEFT") as table:
-        table.row([latin(c.replace("_", " ")) for c in columns])
-        for row in rows:
-            table.row([latin(row.get(c, ""))[:300] for c in columns])
 
 
 def _identity(pdf: FPDF, r: LineageReport) -> None:
@@ -97,16 +70,11 @@ def _tree(pdf: FPDF, r: LineageReport) -> None:
 
 def render(r: LineageReport) -> bytes:
     """The whole report as PDF bytes."""
-    pdf = FPDF(orientation="landscape", format="A4")
-    pdf.set_auto_page_break(auto=True, margin=12)
-    pdf.add_page()
-    pdf.set_font("Helvetica", "B", 16)
-    pdf.multi_cell(0, 9, latin(f"Lineage report: {r.particle.code}"), new_x="LMARGIN",
-                   new_y="NEXT")
+    pdf = document(f"Lineage report: {r.particle.code}")
     _identity(pdf, r)
-    _heading(pdf, "Lineage tree")
+    heading(pdf, "Lineage tree")
     _tree(pdf, r)
     for name, rows in lineage_tables.tables(r).items():
-        _heading(pdf, TITLES[name])
-        _table(pdf, rows, PRINTED[name])
+        heading(pdf, TITLES[name])
+        table(pdf, rows, PRINTED[name])
     return bytes(pdf.output())

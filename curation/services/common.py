@@ -2,15 +2,17 @@
 
 from __future__ import annotations
 
-from collections.abc import Iterable
+import csv
+import io
+from collections.abc import Callable, Iterable, Mapping, Sequence
 from datetime import datetime
 from typing import Any, TypeVar
 
 from sqlalchemy import select
 from sqlalchemy.orm import Session
 
-from curation.errors import InvalidInput, NaiveTimestamp, NotFound
-from curation.model import Item, Location, Person, Station
+from curation.errors import ImportRejected, InvalidInput, NaiveTimestamp, NotFound
+from curation.model import Item, Location, Person, Station, Study
 
 T = TypeVar("T")
 
@@ -37,6 +39,27 @@ def not_negative(field: str, value: float | None) -> float | None:
     return value
 
 
+def parse_csv(text: str, columns: Sequence[str],
+              parse_row: Callable[[int, Mapping[str, str]], T | str]) -> list[T]:
+    """Every data row parsed by `parse_row(line, row)` (which returns a problem as text), or
+    ImportRejected naming every bad row with its line: an import is all or nothing."""
+    reader = csv.DictReader(io.StringIO(text))
+    missing = [c for c in columns if c not in (reader.fieldnames or [])]
+    if missing:
+        raise ImportRejected([f"line 1: missing column(s) {', '.join(missing)}"])
+    parsed: list[T] = []
+    problems: list[str] = []
+    for line, row in enumerate(reader, start=2):
+        result = parse_row(line, row)
+        if isinstance(result, str):
+            problems.append(result)
+        else:
+            parsed.append(result)
+    if problems or not parsed:
+        raise ImportRejected(problems or ["the file has no data rows"])
+    return parsed
+
+
 def _one(session: Session, model: type[T], column: Any, value: str, what: str) -> T:
     """The row whose unique `column` equals `value`, or NotFound naming it."""
     found = session.scalar(select(model).where(column == value))
@@ -58,6 +81,11 @@ def person_by_username(session: Session, username: str) -> Person:
 def location_by_code(session: Session, code: str) -> Location:
     """The location with this code, or NotFound naming it."""
     return _one(session, Location, Location.code, code, "location with code")
+
+
+def study_by_code(session: Session, code: str) -> Study:
+    """The study with this code, or NotFound naming it."""
+    return _one(session, Study, Study.code, code, "study with code")
 
 
 def station_by_code(session: Session, code: str) -> Station:

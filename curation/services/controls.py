@@ -3,8 +3,6 @@ control readings (entered, or imported from CSV all or nothing)."""
 
 from __future__ import annotations
 
-import csv
-import io
 import math
 from collections.abc import Mapping
 from datetime import datetime
@@ -15,8 +13,7 @@ from sqlalchemy.orm import Session
 from curation import ledger
 from curation.errors import InvalidInput, RuleViolation
 from curation.model import CONTROL_KINDS, ControlLink, Event, Indicator, Item, Person, Study
-from curation.services.common import aware, one_of
-from curation.services.environment import ImportRejected
+from curation.services.common import aware, one_of, parse_csv
 from curation.services.events import record_event
 
 THRESHOLD_KINDS = ("absolute", "k-sigma")
@@ -126,20 +123,12 @@ def _parse(line: int, row: Mapping[str, str], controls: Mapping[str, Item],
 def import_control_readings_csv(session: Session, *, actor: Person, study: Study,
                                 text: str, source: str = "") -> list[Event]:
     """Import readings (control, indicator, measured_at, value, uncertainty): all or none."""
-    reader = csv.DictReader(io.StringIO(text))
-    missing = [c for c in READING_COLUMNS if c not in (reader.fieldnames or [])]
-    if missing:
-        raise ImportRejected([f"line 1: missing column(s) {', '.join(missing)}"])
     controls = {i.code: i for i in session.scalars(
         select(Item).where(Item.kind.in_([k.value for k in CONTROL_KINDS])))}
     indicators = {i.code: i for i in session.scalars(
         select(Indicator).where(Indicator.study_id == study.id))}
-    parsed, problems = [], []
-    for line, row in enumerate(reader, start=2):
-        result = _parse(line, row, controls, indicators)
-        (problems if isinstance(result, str) else parsed).append(result)
-    if problems or not parsed:
-        raise ImportRejected(problems or ["the file has no data rows"])
+    parsed = parse_csv(text, READING_COLUMNS,
+                       lambda line, row: _parse(line, row, controls, indicators))
     return [record_control_reading(session, actor=actor, indicator=ind, control=ctl,
                                    measured_at=at, value=v, uncertainty=u, source=source)
             for ctl, ind, at, v, u in parsed]

@@ -3,8 +3,6 @@
 
 from __future__ import annotations
 
-import csv
-import io
 from collections.abc import Mapping
 from datetime import datetime
 from typing import Any
@@ -14,15 +12,7 @@ from sqlalchemy.orm import Session
 from curation import environment, ledger
 from curation.errors import InvalidInput
 from curation.model import EnvironmentReading, Location, Person, ReadingKind
-from curation.services.common import aware
-
-
-class ImportRejected(InvalidInput):
-    """A CSV import refused whole; `problems` names every bad row with its line."""
-
-    def __init__(self, problems: list[str]) -> None:
-        self.problems = problems
-        super().__init__("file", f"{len(problems)} bad row(s)", "; ".join(problems[:20]))
+from curation.services.common import aware, parse_csv
 
 
 def _reading(session: Session, *, actor: Person, location: Location, kind: ReadingKind,
@@ -97,17 +87,6 @@ def _parse_row(line: int, row: Mapping[str, str]) -> tuple[datetime, float, floa
 def import_atmosphere_csv(session: Session, *, actor: Person, location: Location,
                           text: str, source: str = "") -> list[EnvironmentReading]:
     """Import a glovebox log (columns measured_at, o2_ppm, h2o_ppm): every row or none."""
-    reader = csv.DictReader(io.StringIO(text))
-    missing = [c for c in ATMOSPHERE_COLUMNS if c not in (reader.fieldnames or [])]
-    if missing:
-        raise ImportRejected([f"line 1: missing column(s) {', '.join(missing)}"])
-    parsed, problems = [], []
-    for line, row in enumerate(reader, start=2):
-        result = _parse_row(line, row)
-        (problems.append if isinstance(result, str) else parsed.append)(result)  # type: ignore[arg-type]
-    if problems:
-        raise ImportRejected(problems)
-    if not parsed:
-        raise ImportRejected(["the file has no data rows"])
+    parsed = parse_csv(text, ATMOSPHERE_COLUMNS, _parse_row)
     return [record_atmosphere(session, actor=actor, location=location, measured_at=at,
                               o2_ppm=o2, h2o_ppm=h2o, source=source) for at, o2, h2o in parsed]

@@ -8,12 +8,11 @@ from markupsafe import Markup
 from sqlalchemy import select
 from sqlalchemy.orm import Session
 
-from curation.errors import CurationError, InvalidInput
+from curation.errors import CurationError, ImportRejected, InvalidInput
 from curation.model import Event, Study, StudyItem
 from curation.reports import controls, controls_pdf
 from curation.services import controls as control_writes
 from curation.services.common import item_by_code, person_by_username
-from curation.services.environment import ImportRejected
 from curation.web import forms as f
 from curation.web.app import db_session
 
@@ -77,10 +76,7 @@ def _record(session: Session, report: controls.ControlsReport, kind: str,
             uncertainty=form.uncertainty.data, step=step, source=form.source.data or "")
         return f"Recorded a reading of {indicator.name} on {form.control.data}"
     upload = form.file.data
-    try:
-        text = upload.read().decode("utf-8-sig")
-    except UnicodeDecodeError:
-        raise InvalidInput("file", upload.filename, "a UTF-8 text (CSV) file") from None
+    text = f.upload_text(form.file)
     rows = control_writes.import_control_readings_csv(
         session, actor=actor, study=report.study, text=text,
         source=form.source.data or upload.filename or "")

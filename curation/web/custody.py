@@ -21,11 +21,10 @@ from curation.audit import custody as custody_rules
 from curation.audit import engine
 from curation.audit.findings import Finding
 from curation.environment import TABLE_SIZES_UM
-from curation.errors import CurationError, InvalidInput
+from curation.errors import CurationError, ImportRejected, InvalidInput
 from curation.model import EnvironmentReading, Event, Item, Location, Person
 from curation.services import custody, environment
 from curation.services.common import item_by_code, location_by_code, person_by_username
-from curation.services.environment import ImportRejected
 from curation.web import forms as f
 from curation.web.app import db_session
 from curation.web.auth import may_write
@@ -249,10 +248,7 @@ def _write_atmosphere(s: Session, place: Location, actor: Person, form: f.Atmosp
 
 def _write_log(s: Session, place: Location, actor: Person, form: f.AtmosphereFileForm) -> str:
     upload = form.file.data
-    try:
-        text = upload.read().decode("utf-8-sig")
-    except UnicodeDecodeError:
-        raise InvalidInput("file", upload.filename, "a UTF-8 text (CSV) file") from None
+    text = f.upload_text(form.file)
     rows = environment.import_atmosphere_csv(s, actor=actor, location=place, text=text,
                                              source=form.source.data or upload.filename or "")
     return f"Imported {len(rows)} atmosphere reading(s) for {place.name}"

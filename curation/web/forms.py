@@ -82,6 +82,15 @@ def location_choices(session: Session) -> list[tuple[str, str]]:
     return [choice("", "— none given —"), *(choice(c, f"{n} ({c})") for c, n in places)]
 
 
+def upload_text(field: Any) -> str:
+    """The uploaded file of a FileField as text, or an error naming the field."""
+    upload = field.data
+    try:
+        return upload.read().decode("utf-8-sig")
+    except UnicodeDecodeError:
+        raise InvalidInput(field.short_name, upload.filename, "a UTF-8 text (CSV) file") from None
+
+
 def attach_error(form: Form, exc: CurationError, aliases: dict[str, str] | None = None) -> None:
     """Show a service's refusal beside the field it names, else at the top of the form."""
     name = exc.field if isinstance(exc, InvalidInput) else ""

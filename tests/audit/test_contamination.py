@@ -7,8 +7,8 @@ import math
 import pytest
 
 from curation.audit import contamination
-from curation.errors import InvalidInput
-from curation.services import controls, custody, environment, events, items, stations, studies
+from curation.errors import ImportRejected, InvalidInput
+from curation.services import controls, custody, events, items, stations, studies
 from tests.conftest import hours
 
 
@@ -61,7 +61,7 @@ def test_control_reading_csv_is_all_or_nothing(session, operator, study, make_it
             "BLK-1,h2o-k-sigma,2026-03-02 09:00,11,2\n"
             "BLK-1,h2o-k-sigma,2026-03-02T09:00:00+00:00,eleven,2\n"
             "BLK-1,h2o-k-sigma,2026-03-02T09:00:00+00:00,11,-2\n")
-    with pytest.raises(environment.ImportRejected) as caught:
+    with pytest.raises(ImportRejected) as caught:
         controls.import_control_readings_csv(session, actor=operator, study=study, text=text)
     lines = [p.split(":")[0] for p in caught.value.problems]
     assert lines == ["line 3", "line 4", "line 5", "line 6", "line 7"]

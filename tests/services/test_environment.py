@@ -6,7 +6,7 @@ import pytest
 from sqlalchemy import func, select
 
 from curation.environment import class_limit
-from curation.errors import InvalidInput
+from curation.errors import ImportRejected, InvalidInput
 from curation.model import EnvironmentReading
 from curation.services import environment as env
 from curation.services import stations
@@ -34,7 +34,7 @@ def test_csv_import_is_all_or_nothing_and_names_every_bad_row(session, operator,
             "2026-03-02T08:10:00+00:00,abc,0.5\n"
             "2026-03-02T08:15:00+00:00,0.4,-2\n")
     before = session.scalar(select(func.count()).select_from(EnvironmentReading))
-    with pytest.raises(env.ImportRejected) as caught:
+    with pytest.raises(ImportRejected) as caught:
         env.import_atmosphere_csv(session, actor=operator, location=box, text=text)
     assert [p.split(":")[0] for p in caught.value.problems] == ["line 3", "line 4", "line 5"]
     assert "no timezone" in caught.value.problems[0]
@@ -43,7 +43,7 @@ def test_csv_import_is_all_or_nothing_and_names_every_bad_row(session, operator,
 
 
 def test_csv_import_names_missing_columns(session, operator, box) -> None:
-    with pytest.raises(env.ImportRejected, match="missing column"):
+    with pytest.raises(ImportRejected, match="missing column"):
         env.import_atmosphere_csv(session, actor=operator, location=box, text="time,o2\n1,2\n")
 
 

@@ -11,10 +11,12 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
-from sqlalchemy import Engine, event, text
+from sqlalchemy import Engine, event, select, text
+from sqlalchemy.orm import Session
 
 from curation.db import make_engine, make_sessionmaker, upgrade_to_head
-from curation.services import generate
+from curation.model import Person
+from curation.services import accounts, generate
 
 #: the PostgreSQL database the benchmarks may wipe; unset: PostgreSQL is skipped
 PG_ENV = "CURATION_BENCH_PG_URL"
@@ -106,6 +108,18 @@ def populate(engine: Engine, particles: int, large_family: int) -> generate.Gene
         conn.execution_options(isolation_level="AUTOCOMMIT").exec_driver_sql(
             "ANALYZE")
     return made
+
+
+def account(sessions: Callable[[], Session], role: str) -> int:
+    """The id of the benchmarks' login with this role (every page needs one), made once."""
+    username = f"bench-{role}"
+    with sessions() as session:
+        found = session.scalar(select(Person.id).where(Person.username == username))
+        if found is None:
+            found = accounts.create_account(session, actor="bench", username=username,
+                                            name=f"Bench {role.title()}", role=role)[0].id
+            session.commit()
+    return found
 
 
 def backends() -> list[str]:

@@ -2,15 +2,14 @@
 
 from __future__ import annotations
 
-from common import Result, captured
+from common import Result, account, captured
 from sqlalchemy import Engine, select
 
 from curation import create_app
 from curation.db import make_sessionmaker
 from curation.history import descendants
-from curation.model import Item, Person
+from curation.model import Item
 from curation.reports import lineage
-from curation.services import accounts
 from curation.web.app import database
 
 
@@ -23,24 +22,13 @@ def _family_with(engine: Engine, wanted: int) -> str:
     return min(counts)[1]
 
 
-def _admin_id(engine: Engine) -> int:
-    """An administrator to read the pages as (every page needs a login)."""
-    with make_sessionmaker(engine)() as session:
-        found = session.scalar(select(Person.id).where(Person.username == "bench-admin"))
-        if found is None:
-            found = accounts.create_account(session, actor="bench", username="bench-admin",
-                                            name="Bench Admin", role="admin")[0].id
-            session.commit()
-    return found
-
-
 def _page_statements(url: str, code: str) -> int:
     app = create_app({"DATABASE_URL": url, "SECRET_KEY": "bench"})
     engine = database(app).engine
     assert engine is not None
     client = app.test_client()
     with client.session_transaction() as cookie:
-        cookie["user_id"] = _admin_id(engine)
+        cookie["user_id"] = account(make_sessionmaker(engine), "admin")
     client.get(f"/items/{code}")
     with captured(engine) as seen:
         assert client.get(f"/items/{code}").status_code == 200

@@ -17,27 +17,49 @@ from datetime import datetime
 from typing import Any
 
 from sqlalchemy import (
-    Integer, Text, case, cast, func, literal, null, or_, select, type_coerce,
+    Integer,
+    Row,
+    Text,
+    bindparam,
+    case,
+    cast,
+    func,
+    literal,
+    null,
+    or_,
+    select,
+    type_coerce,
 )
 from sqlalchemy.orm import Session, joinedload
+from sqlalchemy.orm.attributes import set_committed_value
 from sqlalchemy.sql.expression import ColumnElement
 from sqlalchemy.types import DateTime
 
 from curation.db import UTCDateTime
-from curation.model import Derivation, Event, Item, Placement
+from curation.model import Derivation, Event, Item, Location, Person, Placement, Station
 
 #: recursion guards: far deeper than any real lineage or nesting of containers
 MAX_LINEAGE_DEPTH = 64
 MAX_NESTING_DEPTH = 32
+#: ids bound per IN list: below SQLite's 32,766 and PostgreSQL's 65,535 parameters per
+#: statement, and far above the events of one family, so a page or report issues the same
+#: statements for a small family and a large one
+EVENT_CHUNK = 30_000
 
 OWN, CONTAINER, ANCESTOR, ANCESTOR_CONTAINER = "own", "container", "ancestor", "ancestor-container"
 
-#: what every reader of a history shows beside an event; many-to-one, so joined into the one
-#: statement (five extra SELECT ... IN round trips cost more than the resolver itself)
+#: what every reader of a history shows beside an event; many-to-one, so for one item they
+#: are joined into the one statement (five extra round trips cost more than the resolver
+#: itself); for a batch they are loaded by `_attach_people_and_places` instead (a wide
+#: joined row per event costs more than a few IN queries)
 _EVENT_PEOPLE_AND_PLACES = (
     joinedload(Event.actor), joinedload(Event.station), joinedload(Event.location),
     joinedload(Event.item), joinedload(Event.counterparty),
 )
+#: relationship -> (foreign key attribute, target class)
+_PEOPLE_AND_PLACES = {"actor": ("actor_id", Person), "counterparty": ("counterparty_id", Person),
+                      "station": ("station_id", Station), "location": ("location_id", Location),
+                      "item": ("item_id", Item)}
 
 
 @dataclass(frozen=True)
@@ -72,10 +94,11 @@ class Window:
     path: tuple[int, ...]
 
 
-def _ts(session: Session, value: datetime | None) -> ColumnElement[Any]:
-    """A typed timestamp literal (PostgreSQL needs the type inside a recursive CTE)."""
-    expr = literal(value, UTCDateTime()) if value is not None else null()
-    if session.get_bind().dialect.name == "postgresql":
+def _ts_param(dialect: str, name: str | None) -> ColumnElement[Any]:
+    """A typed timestamp parameter, or NULL (PostgreSQL needs the type inside a recursive
+    CTE)."""
+    expr = bindparam(name, type_=UTCDateTime()) if name else null()
+    if dialect == "postgresql":
         return type_coerce(cast(expr, DateTime(timezone=True)), UTCDateTime())
     return type_coerce(expr, UTCDateTime())
 
@@ -96,22 +119,24 @@ def _path(expr: ColumnElement[Any]) -> ColumnElement[Any]:
     return cast(expr, Text)
 
 
-def _lineage_cte(
-    session: Session, item_id: int, until: datetime | None, timed: bool = True
-) -> Any:
-    """Recursive CTE of the item and its ancestors, each with the cut-off instant.
+def _lineage_cte(dialect: str, timed: bool = True) -> Any:
+    """Recursive CTE of the items named by the `ids` parameter and their ancestors.
 
-    Timed (for histories), a derivation recorded after the cut-off is not followed: what
-    happened to a grandparent after the parent was cut cannot reach the child. Untimed, the
-    plain graph of derivations is walked.
+    Each row carries its `origin` (the item asked about) and the cut-off instant: the
+    `until` parameter at the origin, then the instant each line was cut. Timed (for
+    histories), a derivation recorded after the cut-off is not followed: what happened to a
+    grandparent after the parent was cut cannot reach the child. Untimed, the plain graph of
+    derivations is walked.
     """
     seed = select(
-        literal(item_id, Integer).label("item_id"),
-        _ts(session, until).label("cutoff"),
+        Item.id.label("origin"),
+        Item.id.label("item_id"),
+        _ts_param(dialect, "until").label("cutoff"),
         literal(0, Integer).label("depth"),
-        _path(literal(str(item_id))).label("path"),
-    ).cte("lineage", recursive=True)
+        _path(Item.id).label("path"),
+    ).where(Item.id.in_(bindparam("ids", expanding=True))).cte("lineage", recursive=True)
     up = select(
+        seed.c.origin,
         Derivation.parent_id,
         _earlier(seed.c.cutoff, Derivation.derived_at),
         seed.c.depth + 1,
@@ -122,11 +147,12 @@ def _lineage_cte(
     return seed.union_all(up)
 
 
-def _windows_cte(session: Session, lineage: Any) -> Any:
-    """Recursive CTE of every subject whose events reach the item, with its time window."""
+def _windows_cte(dialect: str, lineage: Any) -> Any:
+    """Recursive CTE of every subject whose events reach each origin, with its time window."""
     seed = select(
+        lineage.c.origin,
         lineage.c.item_id.label("subject_id"),
-        _ts(session, None).label("lo"),
+        _ts_param(dialect, None).label("lo"),
         type_coerce(lineage.c.cutoff, UTCDateTime()).label("hi"),
         lineage.c.item_id.label("ancestor_id"),
         lineage.c.depth.label("ancestor_depth"),
@@ -135,6 +161,7 @@ def _windows_cte(session: Session, lineage: Any) -> Any:
     ).cte("windows", recursive=True)
     p = Placement
     outward = select(
+        seed.c.origin,
         p.container_id,
         _later(seed.c.lo, p.placed_at),
         _earlier(seed.c.hi, p.removed_at),
@@ -150,15 +177,90 @@ def _windows_cte(session: Session, lineage: Any) -> Any:
     return seed.union_all(outward)
 
 
+#: built statements by (question, dialect); they take `ids` (expanding) and `until` parameters,
+#: so each is built and compiled once per process, not on every call
+_STATEMENTS: dict[tuple[str, str], Any] = {}
+
+
+def _statement(session: Session, question: str) -> Any:
+    dialect = session.get_bind().dialect.name
+    key = (question, dialect)
+    if key not in _STATEMENTS:
+        _STATEMENTS[key] = _BUILDERS[question](dialect)
+    return _STATEMENTS[key]
+
+
+def _ask(session: Session, question: str, params: dict[str, Any]) -> list[Row[Any]]:
+    """Rows of one built statement, through Core on the session's connection (the rows are
+    plain values, so the ORM's execution layer would only add time)."""
+    return session.connection().execute(_statement(session, question), params).all()
+
+
+def _windows_statement(dialect: str) -> Any:
+    w = _windows_cte(dialect, _lineage_cte(dialect))
+    return select(w).order_by(w.c.origin, w.c.ancestor_depth, w.c.nesting, w.c.subject_id)
+
+
+def _resolver_statement(dialect: str) -> Any:
+    w = _windows_cte(dialect, _lineage_cte(dialect))
+    e = Event.__table__.c
+    ends = func.coalesce(e.ended_at, e.occurred_at)
+    rank = func.row_number().over(
+        partition_by=(w.c.origin, e.id), order_by=(w.c.ancestor_depth, w.c.nesting, w.c.path)
+    )
+    reached = select(
+        w.c.origin, e.id.label("event_id"), e.occurred_at, w.c.ancestor_id, w.c.ancestor_depth,
+        w.c.nesting, w.c.subject_id, w.c.path, rank.label("rank"),
+    ).join(w, e.item_id == w.c.subject_id).where(
+        or_(w.c.hi.is_(None), e.occurred_at <= w.c.hi),
+        or_(w.c.lo.is_(None), ends >= w.c.lo),
+    ).subquery("reached")
+    r = reached.c
+    return (select(r.origin, r.event_id, r.ancestor_id, r.ancestor_depth, r.nesting,
+                   r.subject_id, r.path)
+            .where(r.rank == 1).order_by(r.origin, r.occurred_at, r.event_id))
+
+
+def _ancestors_statement(dialect: str) -> Any:
+    lineage = _lineage_cte(dialect, timed=False)
+    return (select(lineage.c.origin, lineage.c.item_id, lineage.c.depth, lineage.c.cutoff)
+            .where(lineage.c.depth > 0)
+            .order_by(lineage.c.origin, lineage.c.depth, lineage.c.item_id))
+
+
+def _descendants_statement(dialect: str) -> Any:
+    seed = select(
+        Item.id.label("item_id"), literal(0, Integer).label("parent_id"),
+        literal(0, Integer).label("depth"),
+    ).where(Item.id.in_(bindparam("ids", expanding=True))).cte("descendants", recursive=True)
+    down = select(Derivation.child_id, Derivation.parent_id, seed.c.depth + 1).join(
+        seed, Derivation.parent_id == seed.c.item_id
+    ).where(seed.c.depth < MAX_LINEAGE_DEPTH)
+    tree = seed.union_all(down)
+    return (select(tree.c.item_id, tree.c.parent_id, tree.c.depth).where(tree.c.depth > 0)
+            .distinct().order_by(tree.c.depth, tree.c.item_id))
+
+
+def _roots_statement(dialect: str) -> Any:
+    lineage = _lineage_cte(dialect, timed=False)
+    has_parent = select(Derivation.id).where(Derivation.child_id == lineage.c.item_id).exists()
+    return select(lineage.c.item_id).where(~has_parent).distinct()
+
+
+_BUILDERS = {"windows": _windows_statement, "resolve": _resolver_statement,
+             "ancestors": _ancestors_statement, "descendants": _descendants_statement,
+             "roots": _roots_statement}
+
+
+def _split(path: str) -> tuple[int, ...]:
+    return tuple(int(x) for x in path.split(">"))
+
+
 def windows(session: Session, item_id: int, until: datetime | None = None) -> list[Window]:
     """Every ancestor and container whose events reach the item, with the window they apply in."""
-    w = _windows_cte(session, _lineage_cte(session, item_id, until))
-    rows = session.execute(select(w).order_by(w.c.ancestor_depth, w.c.nesting, w.c.subject_id))
-    return [
-        Window(r.subject_id, r.lo, r.hi, r.ancestor_id, r.ancestor_depth, r.nesting,
-               tuple(int(x) for x in r.path.split(">")))
-        for r in rows
-    ]
+    rows = _ask(session, "windows", {"ids": [item_id], "until": until})
+    return [Window(r.subject_id, r.lo, r.hi, r.ancestor_id, r.ancestor_depth, r.nesting,
+                   _split(r.path)) for r in rows]
 
 
 def _reach(ancestor_depth: int, nesting: int) -> str:
@@ -167,70 +269,102 @@ def _reach(ancestor_depth: int, nesting: int) -> str:
     return ANCESTOR if nesting == 0 else ANCESTOR_CONTAINER
 
 
+def resolve(session: Session, item_ids: Sequence[int], until: datetime | None = None
+            ) -> list[Row[Any]]:
+    """The resolver itself: which events reach each item, and how; one recursive statement.
+
+    Rows (origin, event_id, ancestor_id, ancestor_depth, nesting, subject_id, path), by
+    origin then oldest first; `origin` is the item asked about, `subject_id` the item or
+    container the event was recorded on.
+    """
+    return _ask(session, "resolve", {"ids": list(item_ids), "until": until})
+
+
+def effective_histories(session: Session, item_ids: Sequence[int],
+                        until: datetime | None = None) -> dict[int, list[HistoryEntry]]:
+    """The effective history of each item up to `until` (default: all), oldest first.
+
+    Two statements whatever the number of items: the resolver, then the events it named
+    (an event shared by many items, such as a particle's, is loaded once).
+    """
+    reached = resolve(session, item_ids, until)
+    ids = sorted({r.event_id for r in reached})
+    events: dict[int, Event] = {}
+    if len(item_ids) == 1:
+        events.update((e.id, e) for e in _in_chunks(session, Event, ids,
+                                                    _EVENT_PEOPLE_AND_PLACES))
+    else:
+        events.update((e.id, e) for e in _in_chunks(session, Event, ids))
+        _attach_people_and_places(session, list(events.values()))
+    found: dict[int, list[HistoryEntry]] = {i: [] for i in item_ids}
+    for r in reached:
+        depth, nesting = r.ancestor_depth, r.nesting
+        found[r.origin].append(HistoryEntry(
+            event=events[r.event_id],
+            reach=_reach(depth, nesting),
+            ancestor_id=r.ancestor_id if depth > 0 else None,
+            container_id=r.subject_id if nesting > 0 else None,
+            path=_split(r.path),
+        ))
+    return found
+
+
+def _in_chunks(session: Session, cls: Any, ids: Sequence[int], options: Sequence[Any] = ()
+               ) -> list[Any]:
+    """Rows of `cls` with these ids, `EVENT_CHUNK` per statement (one statement for none)."""
+    ids = sorted(ids)
+    return [obj for start in range(0, max(len(ids), 1), EVENT_CHUNK)
+            for obj in session.scalars(select(cls).where(
+                cls.id.in_(ids[start:start + EVENT_CHUNK])).options(*options)).unique()]
+
+
+def _attach_people_and_places(session: Session, events: list[Event]) -> None:
+    """Load the events' people, stations, locations and items, one IN query per kind (a
+    fixed number, unlike `selectinload`, which splits its IN lists into chunks of 500)."""
+    wanted: dict[type, set[int]] = {}
+    for key, cls in _PEOPLE_AND_PLACES.values():
+        wanted.setdefault(cls, set()).update(
+            v for e in events if (v := getattr(e, key)) is not None)
+    found = {cls: {o.id: o for o in _in_chunks(session, cls, ids)} for cls, ids in wanted.items()}
+    for name, (key, cls) in _PEOPLE_AND_PLACES.items():
+        for e in events:
+            ref = getattr(e, key)
+            set_committed_value(e, name, None if ref is None else found[cls][ref])
+
+
 def effective_history(
     session: Session, item_id: int, until: datetime | None = None
 ) -> list[HistoryEntry]:
     """The item's effective history up to `until` (default: all), oldest first."""
-    w = _windows_cte(session, _lineage_cte(session, item_id, until))
-    e = Event
-    ends = func.coalesce(e.ended_at, e.occurred_at)
-    rank = func.row_number().over(
-        partition_by=e.id, order_by=(w.c.ancestor_depth, w.c.nesting, w.c.path)
-    )
-    reached = select(
-        e.id.label("event_id"), w.c.ancestor_id, w.c.ancestor_depth, w.c.nesting,
-        w.c.subject_id, w.c.path, rank.label("rank"),
-    ).join(w, e.item_id == w.c.subject_id).where(
-        or_(w.c.hi.is_(None), e.occurred_at <= w.c.hi),
-        or_(w.c.lo.is_(None), ends >= w.c.lo),
-    ).subquery("reached")
-    stmt = (
-        select(Event, reached)
-        .join(reached, Event.id == reached.c.event_id)
-        .where(reached.c.rank == 1)
-        .order_by(Event.occurred_at, Event.id)
-        .options(*_EVENT_PEOPLE_AND_PLACES)
-    )
-    entries = []
-    for row in session.execute(stmt):
-        depth, nesting = row.ancestor_depth, row.nesting
-        entries.append(HistoryEntry(
-            event=row.Event,
-            reach=_reach(depth, nesting),
-            ancestor_id=row.ancestor_id if depth > 0 else None,
-            container_id=row.subject_id if nesting > 0 else None,
-            path=tuple(int(x) for x in row.path.split(">")),
-        ))
-    return entries
+    return effective_histories(session, [item_id], until)[item_id]
+
+
+def ancestors_of(session: Session, item_ids: Sequence[int]
+                 ) -> dict[int, list[tuple[int, int, datetime | None]]]:
+    """For each item, (ancestor id, depth, instant the line was cut from it), nearest first."""
+    found: dict[int, list[tuple[int, int, datetime | None]]] = {i: [] for i in item_ids}
+    for r in _ask(session, "ancestors", {"ids": list(item_ids), "until": None}):
+        found[r.origin].append((r.item_id, r.depth, r.cutoff))
+    return found
 
 
 def ancestors(session: Session, item_id: int) -> list[tuple[int, int, datetime | None]]:
     """(ancestor id, depth, instant the line was cut from it), nearest first; the whole graph."""
-    lineage = _lineage_cte(session, item_id, None, timed=False)
-    rows = session.execute(
-        select(lineage.c.item_id, lineage.c.depth, lineage.c.cutoff)
-        .where(lineage.c.depth > 0).order_by(lineage.c.depth, lineage.c.item_id)
-    )
-    return [(r.item_id, r.depth, r.cutoff) for r in rows]
+    return ancestors_of(session, [item_id])[item_id]
 
 
 def descendants(session: Session, item_ids: Sequence[int]) -> list[tuple[int, int, int]]:
     """(descendant id, parent id, depth) below the given items, one recursive query."""
-    if not item_ids:
-        return []
-    seed = select(
-        Item.id.label("item_id"), literal(0, Integer).label("parent_id"),
-        literal(0, Integer).label("depth"),
-    ).where(Item.id.in_(list(item_ids))).cte("descendants", recursive=True)
-    down = select(Derivation.child_id, Derivation.parent_id, seed.c.depth + 1).join(
-        seed, Derivation.parent_id == seed.c.item_id
-    ).where(seed.c.depth < MAX_LINEAGE_DEPTH)
-    tree = seed.union_all(down)
-    rows = session.execute(
-        select(tree.c.item_id, tree.c.parent_id, tree.c.depth).where(tree.c.depth > 0)
-        .distinct().order_by(tree.c.depth, tree.c.item_id)
-    )
-    return [(r.item_id, r.parent_id, r.depth) for r in rows]
+    return [tuple(r) for r in _ask(session, "descendants", {"ids": list(item_ids)})]
+
+
+@dataclass(frozen=True)
+class FamilyLink:
+    """One item of a family, by id only, with its parent in the tree (None at a root)."""
+
+    item_id: int
+    parent_id: int | None
+    depth: int
 
 
 @dataclass(frozen=True)
@@ -241,23 +375,34 @@ class TreeNode:
     parent_id: int | None
     depth: int
 
+    @property
+    def item_id(self) -> int:
+        return self.item.id
 
-def lineage_tree(session: Session, item_id: int) -> list[TreeNode]:
-    """The whole family of an item: its root particle(s) and every descendant, two queries."""
-    lineage = _lineage_cte(session, item_id, None, timed=False)
-    has_parent = select(Derivation.id).where(Derivation.child_id == lineage.c.item_id).exists()
-    roots = [r for r in session.scalars(
-        select(lineage.c.item_id).where(~has_parent).distinct())]
-    below = descendants(session, roots)
-    ids = set(roots) | {d for d, _, _ in below}
-    items = {i.id: i for i in session.scalars(select(Item).where(Item.id.in_(ids)))}
-    nodes = [TreeNode(items[r], None, 0) for r in sorted(roots)]
+
+def family_links(session: Session, item_id: int) -> list[FamilyLink]:
+    """The shape of an item's whole family: its root particle(s) first, then every
+    descendant once, by depth (two queries, no item loaded)."""
+    roots = sorted(r[0] for r in _ask(session, "roots", {"ids": [item_id], "until": None}))
+    links = [FamilyLink(r, None, 0) for r in roots]
     seen: set[int] = set(roots)
-    for child, parent, depth in below:
+    for child, parent, depth in descendants(session, roots):
         if child not in seen:
             seen.add(child)
-            nodes.append(TreeNode(items[child], parent, depth))
-    return nodes
+            links.append(FamilyLink(child, parent, depth))
+    return links
+
+
+def tree_of(session: Session, links: list[FamilyLink]) -> list[TreeNode]:
+    """The links with their items loaded, one query."""
+    items = {i.id: i for i in session.scalars(
+        select(Item).where(Item.id.in_([link.item_id for link in links])))}
+    return [TreeNode(items[link.item_id], link.parent_id, link.depth) for link in links]
+
+
+def lineage_tree(session: Session, item_id: int) -> list[TreeNode]:
+    """The whole family of an item: its root particle(s) and every descendant, three queries."""
+    return tree_of(session, family_links(session, item_id))
 
 
 def containers_during(
@@ -288,10 +433,11 @@ def contents(
     The mirror of `windows`: each returned window is the time the item was inside, cut to
     [start, end]; `subject_id` is the item, `path` runs from the container down to it.
     """
+    dialect = session.get_bind().dialect.name
     seed = select(
         literal(container_id, Integer).label("subject_id"),
-        _ts(session, start).label("lo"),
-        _ts(session, end).label("hi"),
+        _ts_param(dialect, "lo").label("lo"),
+        _ts_param(dialect, "hi").label("hi"),
         literal(0, Integer).label("nesting"),
         _path(literal(str(container_id))).label("path"),
     ).cte("contents", recursive=True)
@@ -309,6 +455,6 @@ def contents(
     )
     tree = seed.union_all(inward)
     rows = session.execute(select(tree).where(tree.c.nesting > 0)
-                           .order_by(tree.c.nesting, tree.c.subject_id))
+                           .order_by(tree.c.nesting, tree.c.subject_id), {"lo": start, "hi": end})
     return [Window(r.subject_id, r.lo, r.hi, container_id, 0, r.nesting,
                    tuple(int(x) for x in r.path.split(">"))) for r in rows]

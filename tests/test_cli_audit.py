@@ -40,3 +40,14 @@ def test_human_output_and_unknown_study(demo_url: str) -> None:
     assert "pristine-broken" in result.output and "open error(s)" in result.output
     empty = _audit(demo_url, "--study", "NO-SUCH-STUDY")
     assert empty.exit_code == 0 and "No findings." in empty.output
+
+
+def test_progress_goes_to_a_watching_terminal_only(demo_url: str, monkeypatch) -> None:
+    quiet = _audit(demo_url, "--json")
+    assert "audited" not in quiet.stderr
+    monkeypatch.setattr("curation.cli.audit._watched", lambda: True)
+    watched = _audit(demo_url, "--json")
+    assert watched.stdout == quiet.stdout  # the findings are untouched
+    items = len(json.loads(CliRunner().invoke(main, ["items", "--db", demo_url,
+                                                     "--json"]).output))
+    assert f"audited {items:,} item(s) of at most {items:,}" in watched.stderr

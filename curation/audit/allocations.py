@@ -101,14 +101,14 @@ def load(session: Session, allocation_ids: list[int] | None = None) -> Loaded:
     data = Loaded({i: everything[i] for i in sorted(wanted)}, list(session.scalars(
         select(AllocationItem).where(AllocationItem.allocation_id.in_(wanted))
         .options(joinedload(AllocationItem.item))
-        .order_by(AllocationItem.issued_at, AllocationItem.id))) if wanted else [])
+        .order_by(AllocationItem.issued_at, AllocationItem.id))))
     roots = sorted({a.item_id for a in data.issued})
     below = history.descendants(session, roots)
     ids = sorted(set(roots) | {d for d, _, _ in below})
     data.parent_of = {d: p for d, p, _ in below}
-    if ids:
-        data.items = {i.id: i for i in session.scalars(select(Item).where(Item.id.in_(ids)))}
-        _load_family(session, data, ids)
+    # every query runs even when there is nothing to load: a fixed number of statements
+    data.items = {i.id: i for i in session.scalars(select(Item).where(Item.id.in_(ids)))}
+    _load_family(session, data, ids)
     _load_allocation_rows(session, data, sorted(wanted))
     return data
 
@@ -149,15 +149,14 @@ def _load_allocation_rows(session: Session, data: Loaded, wanted: list[int]) -> 
     for a in data.allocations.values():
         members[a.id].add(a.investigator_id)
     reports: dict[int, list[AllocationReport]] = defaultdict(list)
-    if wanted:
-        for m in session.scalars(select(AllocationMember).where(
-                AllocationMember.allocation_id.in_(wanted))):
-            members[m.allocation_id].add(m.person_id)
-        data.returns = {(r.allocation_id, r.item_id): r for r in session.scalars(
-            select(AllocationReturn).where(AllocationReturn.allocation_id.in_(wanted)))}
-        for r in session.scalars(select(AllocationReport).where(
-                AllocationReport.allocation_id.in_(wanted)).order_by(AllocationReport.due_at)):
-            reports[r.allocation_id].append(r)
+    for m in session.scalars(select(AllocationMember).where(
+            AllocationMember.allocation_id.in_(wanted))):
+        members[m.allocation_id].add(m.person_id)
+    data.returns = {(r.allocation_id, r.item_id): r for r in session.scalars(
+        select(AllocationReturn).where(AllocationReturn.allocation_id.in_(wanted)))}
+    for r in session.scalars(select(AllocationReport).where(
+            AllocationReport.allocation_id.in_(wanted)).order_by(AllocationReport.due_at)):
+        reports[r.allocation_id].append(r)
     data.members, data.reports = dict(members), dict(reports)
 
 
@@ -406,8 +405,18 @@ def findings_by_item(session: Session, now: datetime) -> dict[int, list[Finding]
 def item_findings(session: Session, item: Item, now: datetime) -> list[Finding]:
     """The allocation findings raised on one item (its allocations' trees only)."""
     lineage = [item.id] + [a for a, _, _ in history.ancestors(session, item.id)]
+    return findings_for(session, {item.id: lineage}, now).get(item.id, [])
+
+
+def findings_for(session: Session, lineages: dict[int, list[int]], now: datetime
+                 ) -> dict[int, list[Finding]]:
+    """The allocation findings raised on each item, given its lineage (the item and its
+    ancestors): only the allocation trees that hold the lineages are loaded."""
+    wanted = sorted({i for lineage in lineages.values() for i in lineage})
     ids = sorted(set(session.scalars(select(AllocationItem.allocation_id).where(
-        AllocationItem.item_id.in_(lineage)))))
-    if not ids:
-        return []
-    return [f for f in findings(load(session, ids), now) if f.item_id == item.id]
+        AllocationItem.item_id.in_(wanted)))))
+    out: dict[int, list[Finding]] = defaultdict(list)
+    for f in findings(load(session, ids), now):
+        if f.item_id in lineages:
+            out[f.item_id].append(f)
+    return dict(out)

@@ -30,7 +30,7 @@ def dose_over_limit(ctx: ItemContext) -> list[Finding]:
     """Cumulative electron dose or ion fluence over the study's limit; one acquisition over
     the per-acquisition limit (the study's, else the material class default)."""
     t = ctx.thresholds
-    b = exposure.budget(ctx.current())
+    b = ctx.budget()
     found = _over(ctx, "dose-over-limit", "electron dose", b.electron_e_per_A2,
                   t.max_electron_dose_e_per_A2, "e⁻/Å²", _events(b.electron_events))
     limit, by_study = exposure.acquisition_limit(
@@ -48,7 +48,7 @@ def dose_over_limit(ctx: ItemContext) -> list[Finding]:
 def exposure_over_limit(ctx: ItemContext) -> list[Finding]:
     """Air minutes, X-ray time or heating temperature over the study's limits."""
     t = ctx.thresholds
-    b = exposure.budget(ctx.current())
+    b = ctx.budget()
     hottest = max((k for _, k in b.heating_events), default=0.0)
     hot = [(ev, k) for ev, k in b.heating_events
            if t.max_temperature_K is not None and k > t.max_temperature_K]
@@ -95,7 +95,7 @@ def dose_before_apt(ctx: ItemContext) -> list[Finding]:
     found = []
     for run, earlier in _before(ctx, "apt"):
         doses = [(ev, d.electron_dose_e_per_A2) for ev in earlier
-                 if (d := exposure.event_dose(ev)) and d.electron_dose_e_per_A2]
+                 if (d := ctx.dose(ev)) and d.electron_dose_e_per_A2]
         total = sum(v for _, v in doses)
         if total > limit:
             found.append(ctx.finding(

@@ -2,16 +2,19 @@
 
 from __future__ import annotations
 
-from collections.abc import Callable, Iterator
+from collections import defaultdict
+from collections.abc import Callable, Iterator, Sequence
 from datetime import datetime
+from typing import Any
 
-from sqlalchemy import select
+from sqlalchemy import Select, select
 from sqlalchemy.orm import Session, joinedload
 
 from curation import history
 from curation.audit import allocations, budgets, contamination, custody, environment, timeline
 from curation.audit.findings import Finding, ItemContext, Thresholds
 from curation.db import utcnow
+from curation.techniques import Dose
 from curation.model import (
     ControlLink,
     Derivation,
@@ -55,94 +58,171 @@ CODES = (
 )
 
 
+#: items audited together: each batch costs a fixed number of statements
+BATCH = 100
+#: ids bound per IN list (the resolver's: below every driver's limit on bound parameters)
+CHUNK = history.EVENT_CHUNK
+
+
 def thresholds_for(session: Session, item: Item) -> Thresholds:
     """The item's first study's rules over the defaults."""
-    rules = session.scalars(
-        select(Study.rules).join(StudyItem, StudyItem.study_id == Study.id)
-        .where(StudyItem.item_id == item.id).order_by(Study.id).limit(1)).first()
-    return Thresholds.from_rules(rules)
+    return _thresholds(session, [item.id])[item.id]
+
+
+def _thresholds(session: Session, ids: list[int]) -> dict[int, Thresholds]:
+    """Each item's first study's rules over the defaults, one query."""
+    rules: dict[int, dict | None] = {}
+    for item_id, chosen in session.execute(
+            select(StudyItem.item_id, Study.rules).join(Study, Study.id == StudyItem.study_id)
+            .where(StudyItem.item_id.in_(ids)).order_by(StudyItem.item_id, Study.id)):
+        rules.setdefault(item_id, chosen)
+    return {i: Thresholds.from_rules(rules.get(i)) for i in ids}
+
+
+def _chunked(session: Session, query: Callable[[list[int]], Select[Any]],
+             ids: list[int]) -> list[Any]:
+    """Rows of `query(chunk)` over the ids in chunks; one statement at least, even for none."""
+    rows: list[Any] = []
+    for start in range(0, max(len(ids), 1), CHUNK):
+        rows.extend(session.execute(query(ids[start:start + CHUNK])))
+    return rows
 
 
 def context(session: Session, item: Item, now: datetime | None = None) -> ItemContext:
     """Everything the rules need about one item."""
-    entries = history.effective_history(session, item.id)
-    ids = [h.event.id for h in entries]
-    superseded = set(session.scalars(
-        select(Event.supersedes_id).where(Event.supersedes_id.in_(ids)))) if ids else set()
-    parents = [(d.parent, d.derived_at) for d in session.scalars(
-        select(Derivation).where(Derivation.child_id == item.id))]
-    ctx = ItemContext(item=item, history=entries, thresholds=thresholds_for(session, item),
-                      now=now or utcnow(), parents=parents, superseded=superseded,
-                      readings=_glovebox_readings(session, entries), children=_children(session, item))
-    _load_controls(session, ctx)
-    return ctx
+    return contexts(session, [item], now)[0]
 
 
-def _load_controls(session: Session, ctx: ItemContext) -> None:
-    """The item's studies' indicators, control set and the control links that cover it."""
-    studies = select(StudyItem.study_id).where(StudyItem.item_id == ctx.item.id)
-    ctx.indicators = {i.id: i for i in session.scalars(
-        select(Indicator).where(Indicator.study_id.in_(studies)))}
-    ctx.has_control_set = session.scalar(select(StudyItem.id).where(
-        StudyItem.study_id.in_(studies), StudyItem.role == "control").limit(1)) is not None
-    lineage = [ctx.item.id] + [a for a, _, _ in history.ancestors(session, ctx.item.id)]
-    ctx.travels_with_control = session.scalar(select(ControlLink.id).where(
-        ControlLink.sample_id.in_(lineage)).limit(1)) is not None
-    ids = [h.event.id for h in ctx.history]
-    ctx.linked_events = set(session.scalars(select(ControlLink.event_id).where(
-        ControlLink.event_id.in_(ids)))) if ids else set()
+def contexts(session: Session, items: Sequence[Item], now: datetime | None = None,
+             histories: dict[int, list[history.HistoryEntry]] | None = None
+             ) -> list[ItemContext]:
+    """Everything the rules need about each item: a fixed number of statements per call,
+    whatever the number of items or the size of their families. `histories`: the items'
+    whole effective histories when the caller has already resolved them."""
+    ids = [i.id for i in items]
+    moment = now or utcnow()
+    if histories is None:
+        histories = history.effective_histories(session, ids)
+    event_ids = sorted({h.event.id for hs in histories.values() for h in hs})
+    superseded = {r[0] for r in _chunked(session, lambda c: select(Event.supersedes_id).where(
+        Event.supersedes_id.in_(c)), event_ids)}
+    parents: dict[int, list[tuple[Item, datetime]]] = defaultdict(list)
+    for d in session.scalars(select(Derivation).where(Derivation.child_id.in_(ids))
+                             .options(joinedload(Derivation.parent))
+                             .order_by(Derivation.derived_at, Derivation.id)):
+        parents[d.child_id].append((d.parent, d.derived_at))
+    children: dict[int, list[tuple[Derivation, Item]]] = defaultdict(list)
+    for d in session.scalars(select(Derivation).where(Derivation.parent_id.in_(ids))
+                             .options(joinedload(Derivation.child))
+                             .order_by(Derivation.derived_at, Derivation.id)):
+        children[d.parent_id].append((d, d.child))
+    thresholds = _thresholds(session, ids)
+    readings = _glovebox_readings(session, [h for hs in histories.values() for h in hs])
+    lineages = history.ancestors_of(session, ids)
+    doses: dict[int, Dose | None] = {}
+    found = [ItemContext(
+        item=item, history=histories[item.id], thresholds=thresholds[item.id], now=moment,
+        parents=parents.get(item.id, []), superseded=superseded,
+        readings=readings, children=children.get(item.id, []),
+        ancestors=[a for a, _, _ in lineages[item.id]], doses=doses) for item in items]
+    _load_controls(session, found, event_ids)
+    return found
 
 
-def _children(session: Session, item: Item) -> list[tuple[Derivation, Item]]:
-    """Derivations cutting children from the item, with the children, one query."""
-    return [(d, d.child) for d in session.scalars(
-        select(Derivation).where(Derivation.parent_id == item.id)
-        .options(joinedload(Derivation.child)).order_by(Derivation.derived_at, Derivation.id))]
+def _load_controls(session: Session, ctxs: list[ItemContext], event_ids: list[int]) -> None:
+    """Each item's studies' indicators, control set and the control links that cover it."""
+    ids = [c.item.id for c in ctxs]
+    studies: dict[int, set[int]] = defaultdict(set)
+    for item_id, study_id in session.execute(select(StudyItem.item_id, StudyItem.study_id)
+                                             .where(StudyItem.item_id.in_(ids))):
+        studies[item_id].add(study_id)
+    every_study = sorted({s for found in studies.values() for s in found})
+    indicators = list(session.scalars(select(Indicator).where(
+        Indicator.study_id.in_(every_study)).order_by(Indicator.id)))
+    with_controls = set(session.scalars(select(StudyItem.study_id).where(
+        StudyItem.study_id.in_(every_study), StudyItem.role == "control").distinct()))
+    lineage = sorted({i for c in ctxs for i in (c.item.id, *c.ancestors)})
+    travelling = {r[0] for r in _chunked(session, lambda c: select(ControlLink.sample_id).where(
+        ControlLink.sample_id.in_(c)).distinct(), lineage)}
+    linked = {r[0] for r in _chunked(session, lambda c: select(ControlLink.event_id).where(
+        ControlLink.event_id.in_(c)), event_ids)}
+    for ctx in ctxs:
+        mine = studies.get(ctx.item.id, set())
+        ctx.indicators = {i.id: i for i in indicators if i.study_id in mine}
+        ctx.has_control_set = bool(mine & with_controls)
+        ctx.travels_with_control = bool(travelling & {ctx.item.id, *ctx.ancestors})
+        ctx.linked_events = linked
 
 
 def _glovebox_readings(session: Session, entries: list[history.HistoryEntry]
                        ) -> dict[int, list[EnvironmentReading]]:
-    """Atmosphere readings of the gloveboxes the item was handled in, one query."""
-    boxes = {h.event.location_id for h in entries
-             if h.event.environment == "n2-glovebox" and h.event.location_id is not None}
+    """Atmosphere readings of the gloveboxes the items were handled in, one query."""
+    boxes = sorted({h.event.location_id for h in entries
+                    if h.event.environment == "n2-glovebox" and h.event.location_id is not None})
     found: dict[int, list[EnvironmentReading]] = {box: [] for box in boxes}
-    if boxes:
-        for reading in session.scalars(
-                select(EnvironmentReading).where(
-                    EnvironmentReading.location_id.in_(boxes),
-                    EnvironmentReading.kind == "atmosphere")
-                .order_by(EnvironmentReading.measured_at)):
-            found[reading.location_id].append(reading)
+    for reading in session.scalars(
+            select(EnvironmentReading).where(
+                EnvironmentReading.location_id.in_(boxes),
+                EnvironmentReading.kind == "atmosphere")
+            .order_by(EnvironmentReading.measured_at)):
+        found[reading.location_id].append(reading)
     return found
 
 
 def audit_item(session: Session, item: Item, now: datetime | None = None,
-               allocated: dict[int, list[Finding]] | None = None) -> list[Finding]:
+               allocated: dict[int, list[Finding]] | None = None,
+               entries: list[history.HistoryEntry] | None = None) -> list[Finding]:
     """Every finding on one item, oldest first; `allocated`: the allocation findings by item,
-    when the caller computed them for every item at once."""
-    ctx = context(session, item, now)
-    found: list[Finding] = []
-    for rule in RULES.values():
-        found.extend(rule(ctx))
-    ends = {p.id: _end(session, p) for p, _ in ctx.parents}
-    found.extend(timeline.orphan_item(ctx, ends))
-    # allocation rules read a whole allocation, not one item's context (audit/allocations.py)
-    found.extend(allocations.item_findings(session, item, ctx.now) if allocated is None
-                 else allocated.get(item.id, []))
-    return sorted(found, key=lambda f: (f.at is None, f.at or ctx.now, f.code))
+    when the caller computed them for every item at once; `entries`: the item's whole
+    effective history, when the caller already has it (the item page shows it too)."""
+    return audit_items(session, [item], now, allocated,
+                       None if entries is None else {item.id: entries})[item.id]
 
 
-def _end(session: Session, item: Item) -> datetime | None:
-    own = session.scalars(select(Event).where(Event.item_id == item.id)
-                          .order_by(Event.occurred_at, Event.id)).all()
-    last = timeline.end_of_life(list(own))
-    return last.occurred_at if last is not None else None
+def audit_items(session: Session, items: Sequence[Item], now: datetime | None = None,
+                allocated: dict[int, list[Finding]] | None = None,
+                histories: dict[int, list[history.HistoryEntry]] | None = None
+                ) -> dict[int, list[Finding]]:
+    """Every finding on each item, oldest first, by item id; a fixed number of statements."""
+    moment = now or utcnow()
+    ctxs = contexts(session, items, moment, histories)
+    ends = _ends(session, ctxs)
+    if allocated is None:
+        # allocation rules read a whole allocation, not one item's context (audit/allocations.py)
+        allocated = allocations.findings_for(
+            session, {c.item.id: [c.item.id, *c.ancestors] for c in ctxs}, moment)
+    out: dict[int, list[Finding]] = {}
+    for ctx in ctxs:
+        found: list[Finding] = []
+        for rule in RULES.values():
+            found.extend(rule(ctx))
+        found.extend(timeline.orphan_item(ctx, ends))
+        found.extend(allocated.get(ctx.item.id, []))
+        out[ctx.item.id] = sorted(found, key=lambda f: (f.at is None, f.at or moment, f.code))
+    return out
+
+
+def _ends(session: Session, ctxs: list[ItemContext]) -> dict[int, datetime | None]:
+    """When each parent of the items was consumed or lost (None: not), one query."""
+    wanted = sorted({p.id for c in ctxs for p, _ in c.parents})
+    own: dict[int, list[Event]] = defaultdict(list)
+    for ev in session.scalars(select(Event).where(Event.item_id.in_(wanted))
+                              .order_by(Event.item_id, Event.occurred_at, Event.id)):
+        own[ev.item_id].append(ev)
+    ends: dict[int, datetime | None] = {}
+    for parent_id in wanted:
+        last = timeline.end_of_life(own.get(parent_id, []))
+        ends[parent_id] = last.occurred_at if last is not None else None
+    return ends
 
 
 def audit(session: Session, *, item_codes: list[str] | None = None, study: str | None = None,
-          now: datetime | None = None) -> Iterator[Finding]:
-    """Findings over all items (or the named ones, or a study's), item by item."""
-    stmt = select(Item.id).order_by(Item.id)
+          now: datetime | None = None, batch: int = BATCH,
+          progress: Callable[[int], None] | None = None) -> Iterator[Finding]:
+    """Findings over all items (or the named ones, or a study's), in batches of items read
+    in id order, so memory stays flat however large the collection; `progress` is told how
+    many items are done after each batch."""
+    stmt = select(Item).order_by(Item.id).limit(batch)
     if item_codes:
         stmt = stmt.where(Item.code.in_(item_codes))
     if study:
@@ -150,10 +230,15 @@ def audit(session: Session, *, item_codes: list[str] | None = None, study: str |
             Study, Study.id == StudyItem.study_id).where(Study.code == study)
     moment = now or utcnow()
     allocated = allocations.findings_by_item(session, moment)
-    for item_id in session.scalars(stmt).all():
-        item = session.get(Item, item_id)
-        if item is not None:
-            yield from audit_item(session, item, moment, allocated)
+    last, done = 0, 0
+    while items := session.scalars(stmt.where(Item.id > last)).all():
+        found = audit_items(session, items, moment, allocated)
+        for item in items:
+            yield from found[item.id]
+        last, done = items[-1].id, done + len(items)
+        if progress is not None:
+            progress(done)
+        del found, items
 
 
 def dispositions(session: Session, findings: list[Finding]) -> dict[str, Disposition]:

@@ -9,6 +9,7 @@ item, so the totals are upper bounds.
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass, field
 from datetime import datetime
 from typing import Any
@@ -111,8 +112,10 @@ def heating_K(ev: Event) -> float | None:
     return float(value) if isinstance(value, int | float) else None
 
 
-def budget(entries: list[HistoryEntry]) -> Budget:
-    """Add up the item's effective history (corrections already applied), oldest first."""
+def budget(entries: list[HistoryEntry],
+           dose: Callable[[Event], Dose | None] = event_dose) -> Budget:
+    """Add up the item's effective history (corrections already applied), oldest first;
+    `dose`: `event_dose`, or a memo of it."""
     out = Budget()
     air: list[tuple[datetime, datetime]] = []
     for entry in entries:
@@ -121,7 +124,7 @@ def budget(entries: list[HistoryEntry]) -> Budget:
             air.append((ev.occurred_at, ev.ended_at or ev.occurred_at))
             out.air_events.append(ev)
             out.air_minutes = merged_minutes(air)
-        _add_dose(out, ev, event_dose(ev))
+        _add_dose(out, ev, dose(ev))
         temperature = heating_K(ev)
         if temperature is not None:
             out.heating_events.append((ev, temperature))

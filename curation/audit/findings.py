@@ -6,8 +6,10 @@ from dataclasses import dataclass, field, fields, replace
 from datetime import datetime
 from typing import Any
 
+from curation.audit import exposure
 from curation.history import HistoryEntry
 from curation.model import Derivation, EnvironmentReading, Event, Indicator, Item
+from curation.techniques import Dose
 
 ERROR, WARNING = "error", "warning"
 
@@ -96,18 +98,45 @@ class ItemContext:
     linked_events: set[int] = field(default_factory=set)
     #: derivations cutting children from this item, with the children
     children: list[tuple[Derivation, Item]] = field(default_factory=list)
+    #: ancestor ids, nearest first (the whole graph of derivations)
+    ancestors: list[int] = field(default_factory=list)
+    #: each step's dose by event id, shared by the contexts of one batch (an ancestor's step
+    #: reaches every descendant, and its dose is worked out once)
+    doses: dict[int, Dose | None] = field(default_factory=dict, repr=False)
+    #: the views below, worked out once (every rule reads them; the context is read-only)
+    _memo: dict[str, Any] = field(default_factory=dict, repr=False, compare=False)
 
     def current(self) -> list[HistoryEntry]:
         """The history without events a correction has superseded."""
-        return [h for h in self.history if h.event.id not in self.superseded]
+        if "current" not in self._memo:
+            self._memo["current"] = [h for h in self.history
+                                     if h.event.id not in self.superseded]
+        return self._memo["current"]
 
     def own(self) -> list[Event]:
         """Events on the item itself, corrections applied."""
-        return [h.event for h in self.current() if h.reach == "own"]
+        if "own" not in self._memo:
+            self._memo["own"] = [h.event for h in self.current() if h.reach == "own"]
+        return self._memo["own"]
 
     def where_it_was(self) -> list[HistoryEntry]:
         """Events on the item or on a container it sat in (not its ancestors')."""
-        return [h for h in self.current() if h.reach in ("own", "container")]
+        if "where" not in self._memo:
+            self._memo["where"] = [h for h in self.current()
+                                   if h.reach in ("own", "container")]
+        return self._memo["where"]
+
+    def dose(self, ev: Event) -> Dose | None:
+        """The dose a step delivered (`exposure.event_dose`), worked out once per batch."""
+        if ev.id not in self.doses:
+            self.doses[ev.id] = exposure.event_dose(ev)
+        return self.doses[ev.id]
+
+    def budget(self) -> exposure.Budget:
+        """The exposure and dose budget over the current history, worked out once."""
+        if "budget" not in self._memo:
+            self._memo["budget"] = exposure.budget(self.current(), self.dose)
+        return self._memo["budget"]
 
     def finding(self, code: str, severity: str, message: str, evidence: list[Event],
                 at: datetime | None = None) -> Finding:

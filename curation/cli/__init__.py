@@ -207,8 +207,10 @@ def run_server(url: str, host: str, port: int) -> None:
     import waitress  # type: ignore[import-untyped]
 
     import curation
+    from curation.web.app import settle_for_serving
 
     app = curation.create_app({"DATABASE_URL": url})
+    settle_for_serving()
     click.echo(f"Serving {safe_url(url)} at {site_url(host, port)} (Ctrl+C to stop)")
     waitress.serve(app, host=host, port=port)
 

@@ -3,15 +3,19 @@
 from __future__ import annotations
 
 import json
+import sys
+from collections.abc import Callable
 from typing import Any
 
 import click
+from sqlalchemy import func, select
+from sqlalchemy.orm import Session
 
 from curation import config
 from curation.audit import engine
 from curation.audit.findings import ERROR, Finding
 from curation.cli import db_option, engine_for, main, require_head, resolve_url, transaction
-from curation.model import Disposition
+from curation.model import Disposition, Item
 
 
 def finding_dict(finding: Finding, disposition: Disposition | None) -> dict[str, Any]:
@@ -42,7 +46,8 @@ def audit_command(ctx: click.Context, db_url: str | None, as_json: bool,
     with engine_for(url) as eng:
         require_head(eng, url)
         with transaction(eng) as session:
-            found = list(engine.audit(session, item_codes=list(items) or None, study=study))
+            found = list(engine.audit(session, item_codes=list(items) or None, study=study,
+                                      progress=_progress(session)))
             decided = engine.dispositions(session, found)
             rows = [finding_dict(f, decided.get(f.key)) for f in found]
     open_errors = sum(1 for r in rows if r["severity"] == ERROR and r["disposition"] is None)
@@ -52,6 +57,23 @@ def audit_command(ctx: click.Context, db_url: str | None, as_json: bool,
     else:
         click.echo(describe(rows, open_errors))
     ctx.exit(1 if open_errors else 0)
+
+
+def _watched() -> bool:
+    """Standard error is a terminal (a person is watching, not a log file)."""
+    return sys.stderr.isatty()
+
+
+def _progress(session: Session) -> Callable[[int], None] | None:
+    """Items audited so far on standard error, when a person is watching it."""
+    if not _watched():
+        return None
+    total = session.scalar(select(func.count(Item.id))) or 0
+
+    def say(done: int) -> None:
+        click.echo(f"\raudited {done:,} item(s) of at most {total:,}", err=True,
+                   nl=done >= total)
+    return say
 
 
 def describe(rows: list[dict[str, Any]], open_errors: int) -> str:

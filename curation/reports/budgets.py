@@ -64,7 +64,7 @@ def limits(t: Thresholds, b: exposure.Budget, material: str) -> list[Limit]:
 def item_budget(session: Session, item: Item) -> ItemBudget:
     """The budgets of one item, from the audit's context (a fixed number of queries)."""
     ctx = engine.context(session, item)
-    spent = exposure.budget(ctx.current())
+    spent = ctx.budget()
     return ItemBudget(item, spent, mass.mass_budget(item, ctx.children, ctx.own()),
                       limits(ctx.thresholds, spent, item.material),
                       material_class(item.material))

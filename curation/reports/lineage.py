@@ -109,7 +109,7 @@ def build(session: Session, code: str) -> LineageReport:
         custody=_merge(entries, events, holders, "custody", session),
         handling=_merge(entries, events, holders, "handling", session),
         controls=_controls(session, particle, entries, events),
-        findings=_findings(session, particle),
+        findings=_findings(session, [n.item for n in tree]),
         budget=budget, derivations=derivations)
 
 
@@ -199,7 +199,10 @@ def _controls(session: Session, particle: Item, entries: list[history.HistoryEnt
     return [found[c] for c in sorted(found)]
 
 
-def _findings(session: Session, particle: Item) -> list[tuple[Finding, Disposition | None]]:
-    found = engine.audit_item(session, particle)
+def _findings(session: Session, family: list[Item]
+              ) -> list[tuple[Finding, Disposition | None]]:
+    """The audit's findings on every item of the family, in one batch, family order."""
+    by_item = engine.audit_items(session, family)
+    found = [f for item in family for f in by_item[item.id]]
     decided = engine.dispositions(session, found)
     return [(f, decided.get(f.key)) for f in found]

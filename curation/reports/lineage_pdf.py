@@ -33,7 +33,7 @@ PRINTED = {
 }
 TITLES = {"items": "Every item of the family", "steps": "Steps, doses and data files",
           "custody": "Chain of custody", "handling": "Handling and exposure",
-          "controls": "Controls that travelled with it", "findings": "Findings (particle)",
+          "controls": "Controls that travelled with it", "findings": "Findings (particle and descendants)",
           "dose_budget": "Exposure and dose budget (particle)",
           "mass_budget": "Mass budget (ug)"}
 

@@ -92,7 +92,7 @@ def budget_rows(r: LineageReport) -> list[Row]:
 
 
 def findings(r: LineageReport) -> list[Row]:
-    """The particle's findings with their dispositions."""
+    """The family's findings with their dispositions."""
     return [{"code": f.code, "severity": f.severity, "item": f.item_code, "message": f.message,
              "evidence": " ".join(map(str, f.evidence)),
              "disposition": d.decision if d else "open", "reason": d.reason if d else ""}

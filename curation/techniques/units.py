@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import math
 import re
+from functools import lru_cache
 
 import pint
 
@@ -36,6 +37,10 @@ def normalise_unit_text(text: str) -> str:
     return _BARE_POWER.sub(r"\1^\2", text)
 
 
+# Parsing, comparing and converting units costs pint tens of microseconds each time, and an
+# import of many rows asks the same few questions over and over; the answers never change
+# (units are immutable), so they are remembered. Refusals raise and are not remembered.
+@lru_cache(maxsize=1024)
 def parse_unit(text: str) -> pint.Unit:
     """The pint unit a string names; UnitError when it is not a plain unit expression."""
     cleaned = normalise_unit_text(text)
@@ -59,6 +64,7 @@ def split_value(text: str) -> tuple[float, pint.Unit | None]:
     return number, (parse_unit(rest) if rest else None)
 
 
+@lru_cache(maxsize=1024)
 def same_kind(a: pint.Unit, b: pint.Unit) -> bool:
     """True when a converts to b; tells angles from plain ratios, which pint both calls 1."""
     return ureg.get_root_units(a)[1] == ureg.get_root_units(b)[1]
@@ -66,9 +72,19 @@ def same_kind(a: pint.Unit, b: pint.Unit) -> bool:
 
 def convert(value: float, source: pint.Unit, target: pint.Unit) -> float:
     """The value in the target unit; pint handles offset units such as °C → K."""
+    if value == 0:  # the cache below cannot tell -0.0 from 0.0
+        return _convert(value, source, target)
+    return _remembered_convert(value, source, target)
+
+
+def _convert(value: float, source: pint.Unit, target: pint.Unit) -> float:
     return float(ureg.Quantity(value, source).to(target).magnitude)
 
 
+_remembered_convert = lru_cache(maxsize=4096)(_convert)
+
+
+@lru_cache(maxsize=1024)
 def symbol(unit: str | None) -> str:
     """The short form shown beside a field ("µm", "e/Å²"); empty for a plain number."""
     if not unit:

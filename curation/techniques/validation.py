@@ -7,6 +7,7 @@ import re
 from collections.abc import Mapping
 from dataclasses import dataclass
 from dataclasses import field as dataclass_field
+from functools import lru_cache
 
 from curation.errors import InvalidInput
 from curation.techniques.catalogue import get
@@ -164,20 +165,24 @@ def _is_blank(raw: Raw) -> bool:
     return raw is None or (isinstance(raw, str) and not raw.strip())
 
 
+def _expected(spec: Field) -> str:
+    """What a number field takes, in words (only written when a value is refused)."""
+    return f"a number in {symbol(spec.unit)}" if spec.unit else "a plain number"
+
+
 def _number(spec: Field, raw: Raw) -> float:
     """A float in the field's unit, from a number or text with an optional unit."""
-    expected = f"a number in {symbol(spec.unit)}" if spec.unit else "a plain number"
     if isinstance(raw, bool) or not isinstance(raw, int | float | str):
-        raise InvalidInput(spec.name, raw, expected)
+        raise InvalidInput(spec.name, raw, _expected(spec))
     if not isinstance(raw, str):
         if not math.isfinite(raw):
-            raise InvalidInput(spec.name, raw, expected)
+            raise InvalidInput(spec.name, raw, _expected(spec))
         return float(raw)
     try:
         number, unit = split_value(raw)
     except UnitError as exc:
-        raise InvalidInput(spec.name, raw, f"{expected}, e.g. '12' or '12 {symbol(spec.unit)}' "
-                           f"({exc})") from exc
+        raise InvalidInput(spec.name, raw, f"{_expected(spec)}, e.g. '12' or "
+                           f"'12 {symbol(spec.unit)}' ({exc})") from exc
     if unit is None:
         return number
     return _converted(spec, raw, number, unit)
@@ -231,11 +236,17 @@ def _normal(word: str) -> str:
     return re.sub(r"[\s\-]+", "_", word.strip().lower())
 
 
+@lru_cache(maxsize=256)
+def _by_normal(choices: tuple[str, ...]) -> dict[str, str]:
+    """Each choice by its normal form (worked out once per set of choices)."""
+    return {_normal(c): c for c in choices}
+
+
 def _choice(spec: Field, raw: Raw) -> str:
     """The canonical spelling of one of the field's choices."""
-    by_normal = {_normal(c): c for c in spec.choices}
-    if isinstance(raw, str) and _normal(raw) in by_normal:
-        return by_normal[_normal(raw)]
+    by_normal = _by_normal(spec.choices)
+    if isinstance(raw, str) and (word := _normal(raw)) in by_normal:
+        return by_normal[word]
     raise InvalidInput(spec.name, raw, "one of " + ", ".join(spec.choices))
 
 

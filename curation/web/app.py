@@ -2,7 +2,9 @@
 
 from __future__ import annotations
 
+import gc
 import secrets
+import threading
 from collections.abc import Mapping
 from dataclasses import dataclass
 from typing import Any
@@ -14,7 +16,7 @@ from sqlalchemy.orm import Session, sessionmaker
 from werkzeug.exceptions import HTTPException, InternalServerError
 
 from curation import config as settings
-from curation.db import READ_ONLY, make_engine, make_sessionmaker
+from curation.db import READ_ONLY, SQLITE_BUSY_TIMEOUT_MS, make_engine, make_sessionmaker
 from curation.errors import CurationError, NotFound
 
 #: sent with every response; scripts and styles only from our own static files
@@ -35,6 +37,11 @@ class Database:
 
     engine: Engine | None
     sessions: sessionmaker[Session]
+    #: SQLite lets one writer in at a time; this process's writing requests queue here and
+    #: each is woken the moment the previous one ends, instead of polling SQLite's busy
+    #: handler, which sleeps longer and longer between tries (up to 100 ms) and so lets the
+    #: write lock sit idle while requests wait (None: not SQLite, or a caller's connection)
+    writers: threading.Lock | None = None
 
 
 def build_app(config: Mapping[str, Any] | None = None) -> Flask:
@@ -78,6 +85,17 @@ def build_app(config: Mapping[str, Any] | None = None) -> Flask:
     return app
 
 
+def settle_for_serving() -> None:
+    """Call once the application is built, before serving: moves everything made so far
+    (modules, routes, mappers, the app) out of the garbage collector's reach.
+
+    A page that loads a thousand-item family allocates enough to set off full collections,
+    which otherwise walk every long-lived object each time: a GIL pause for every request.
+    """
+    gc.collect()
+    gc.freeze()
+
+
 def _settings(config: Mapping[str, Any] | None) -> dict[str, Any]:
     values: dict[str, Any] = {"TESTING": False, "DATABASE_URL": settings.database_url()}
     # A fresh key per start until accounts land: sessions do not survive a restart yet.
@@ -113,7 +131,8 @@ def _database(values: Mapping[str, Any]) -> Database:
         # A caller's connection may already be inside a transaction (tests): nest in savepoints.
         return Database(None, make_sessionmaker(bind, join_transaction_mode="create_savepoint"))
     engine = make_engine(values["DATABASE_URL"])
-    return Database(engine, make_sessionmaker(engine))
+    writers = threading.Lock() if engine.dialect.name == "sqlite" else None
+    return Database(engine, make_sessionmaker(engine), writers)
 
 
 def database(app: Flask) -> Database:
@@ -125,8 +144,14 @@ def database(app: Flask) -> Database:
 def db_session() -> Session:
     """The request's session, opened on first use; the request commits it once."""
     if "db_session" not in g:
-        g.db_session = database(current_app).sessions()
-        if request.method in ("GET", "HEAD"):
+        db = database(current_app)
+        reads_only = request.method in ("GET", "HEAD")
+        # Past the timeout, SQLite's own busy timeout decides, as for other processes.
+        if not reads_only and db.writers is not None and db.writers.acquire(
+                timeout=SQLITE_BUSY_TIMEOUT_MS / 1000):
+            g.db_writer = db.writers
+        g.db_session = db.sessions()
+        if reads_only:
             # Pages only read: SQLite may begin DEFERRED and run beside a writer.
             g.db_session.connection(execution_options={READ_ONLY: True})
     session: Session = g.db_session
@@ -137,17 +162,30 @@ def _finish_transaction(response: Response) -> Response:
     session: Session | None = g.get("db_session")
     if session is not None:
         # Error pages are rendered by handlers, so the status code says whether to keep the work.
-        if response.status_code < 400:
-            session.commit()
-        else:
-            session.rollback()
+        try:
+            if response.status_code < 400:
+                session.commit()
+            else:
+                session.rollback()
+        finally:
+            # SQLite's write lock went with the transaction: let the next writer in now.
+            _release_writer()
     return response
 
 
 def _close_session(_exc: BaseException | None) -> None:
     session: Session | None = g.pop("db_session", None)
-    if session is not None:
-        session.close()
+    try:
+        if session is not None:
+            session.close()
+    finally:
+        _release_writer()
+
+
+def _release_writer() -> None:
+    writer: threading.Lock | None = g.pop("db_writer", None)
+    if writer is not None:
+        writer.release()
 
 
 def _security_headers(response: Response) -> Response:

@@ -7,13 +7,14 @@ size of the family: the history resolver answers in one statement, the rest are 
 from __future__ import annotations
 
 import json
+from collections import deque
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 from datetime import datetime
-from typing import Any
+from typing import Any, TypeVar
 
-from flask import Blueprint, redirect, render_template, request, url_for
-from markupsafe import Markup
+from flask import Blueprint, current_app, g, redirect, render_template, request, url_for
+from markupsafe import Markup, escape
 from sqlalchemy import func, or_, select
 from sqlalchemy.orm import Session, joinedload, selectinload
 from werkzeug.wrappers import Response
@@ -40,6 +41,12 @@ MAX_SEARCH = 64
 #: highest page number accepted (keeps the offset a small integer)
 MAX_PAGE = 100_000
 KINDS = [k.value for k in ItemKind]
+#: most boxes the item page's lineage picture draws: a larger family is drawn around the
+#: item, and whole in the lineage report (a thousand boxes cost more than the rest of the
+#: page together, and no one reads a picture a hundred screens tall)
+PICTURE_MAX = 100
+#: a lineage tree's node: `history.FamilyLink` (ids only) or `history.TreeNode`
+Node = TypeVar("Node", history.FamilyLink, history.TreeNode)
 #: a shape for each status, so status never rests on colour alone
 STATUS_MARKS = {"registered": "○", "stored": "■", "in-analysis": "▶", "consumed": "✕",
                 "returned": "↩", "lost": "?"}
@@ -63,6 +70,28 @@ def qty(value: float | None, uncertainty: float | None, unit: str, method: str |
 @bp.app_context_processor
 def _marks() -> dict[str, Any]:
     return {"STATUS_MARKS": STATUS_MARKS}
+
+
+@bp.app_template_global()
+def item_href(code: str) -> str:
+    """The item page's address, exactly as url_for builds it, at a fraction of the cost:
+    the item page links every box of its lineage picture (a thousand in a large family)."""
+    built = g.get("item_href")
+    if built is None:
+        url_map = current_app.url_map
+        # The route is built once per request; "_" is never quoted, so it marks where the code goes.
+        built = g.item_href = (url_for("items.item_page", code="_")[:-1],
+                               url_map.converters["default"](url_map).to_url)
+    stem, quoted = built
+    return stem + quoted(code)
+
+
+@bp.app_template_global()
+def item_link_html(item: Item) -> Markup:
+    """A link to an item's page, its kind and code: the one definition of the item link
+    (the `item_link` macro of items/_marks.html wraps it; long lists call it directly)."""
+    return Markup(f'<a class="item-link" href="{escape(item_href(item.code))}">'
+                  f'{escape(item.kind)} <span class="code">{escape(item.code)}</span></a>')
 
 
 # ---- the list -------------------------------------------------------------------------
@@ -157,7 +186,10 @@ class ItemView:
     parents: list[tuple[Derivation, Item]]
     children: list[tuple[Derivation, Item]]
     timeline: list[TimelineRow]
+    #: the part of the family the lineage picture draws (`around`)
     tree: list[history.TreeNode]
+    #: how many items the whole family holds
+    family_size: int
     #: the audit's findings on the item, with their dispositions
     findings: list[FindingRow] = field(default_factory=list)
     #: event id → the findings it is evidence for, as (row number, finding row)
@@ -167,16 +199,18 @@ class ItemView:
 def item_view(session: Session, code: str) -> ItemView:
     """Gather the item page in a fixed number of queries."""
     item = item_by_code(session, code)
-    tree = history.lineage_tree(session, item.id)
+    family = history.family_links(session, item.id)
+    tree = history.tree_of(session, around(family, item.id))
     known = {n.item.id: n.item for n in tree}
     links = session.scalars(select(Derivation).where(
         or_(Derivation.child_id == item.id, Derivation.parent_id == item.id))
         .order_by(Derivation.derived_at, Derivation.id)).all()
     entries = history.effective_history(session, item.id)
     chain, positions = placement_chain(session, item.id)
-    ids = {i for e in entries for i in e.path} | set(chain)
+    ids = ({i for e in entries for i in e.path} | set(chain)
+           | {i for d in links for i in (d.parent_id, d.child_id)})
     known.update(_items_by_id(session, ids - known.keys()))
-    rows = finding_rows(session, audit_item(session, item))
+    rows = finding_rows(session, audit_item(session, item, entries=entries))
     return ItemView(
         item=item,
         placement=[(known[c], positions.get(p, "")) for p, c in zip([item.id, *chain], chain)],
@@ -184,9 +218,39 @@ def item_view(session: Session, code: str) -> ItemView:
         children=[(d, known[d.child_id]) for d in links if d.parent_id == item.id],
         timeline=_timeline(session, entries, known),
         tree=tree,
+        family_size=len(family),
         findings=rows,
         evidence=_evidence_marks(rows),
     )
+
+
+def around(tree: list[Node], item_id: int, most: int | None = None) -> list[Node]:
+    """The part of the family the item page draws: all of it up to `most` (PICTURE_MAX)
+    items; else the roots, the item's line back to its root, what was cut from each item on
+    that line (nearest the item first), then the item's descendants, nearest first."""
+    most = PICTURE_MAX if most is None else most
+    if len(tree) <= most:
+        return tree
+    by_id = {n.item_id: n for n in tree}
+    children: dict[int | None, list[int]] = {}
+    for n in tree:
+        children.setdefault(n.parent_id, []).append(n.item_id)
+    line: list[int] = []
+    node = by_id.get(item_id)
+    while node is not None and node.item_id not in line:
+        line.append(node.item_id)
+        node = by_id.get(node.parent_id) if node.parent_id is not None else None
+    wanted = dict.fromkeys([*children.get(None, []), *reversed(line)])
+    for line_id in line:
+        wanted.update(dict.fromkeys(children.get(line_id, [])))
+    below = deque(children.get(item_id, []))
+    while below and len(wanted) < most:
+        child = below.popleft()
+        wanted[child] = None
+        below.extend(children.get(child, []))
+    # Every kept item's parent is kept too, so the picture stays one connected drawing.
+    keep = set(list(wanted)[:max(most, len(line))])
+    return [n for n in tree if n.item_id in keep]
 
 
 def _evidence_marks(rows: list[FindingRow]) -> dict[int, list[tuple[int, FindingRow]]]:
@@ -328,7 +392,7 @@ def item_page(code: str) -> str:
     view = item_view(db_session(), code)
     picture = lineage_svg.render(
         view.tree, current_id=view.item.id, label=f"Lineage of {view.item.code}",
-        href=lambda i: url_for("items.item_page", code=i.code))
+        href=lambda i: item_href(i.code))
     return render_template("items/item.html", v=view, picture=Markup(picture),
                            files=images.files_with_images(db_session(), view.item.id),
                            control_kinds={k.value for k in CONTROL_KINDS})

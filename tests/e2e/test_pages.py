@@ -21,7 +21,9 @@ def _px(value: str) -> float:
 
 def test_search_open_item_follow_the_picture_and_open_an_event(page: Any, scene: Scene) -> None:
     page.goto("/items")
-    assert page.evaluate("document.activeElement.id") == "q"  # autofocus: type straight away
+    # autofocus: type straight away (the browser may focus just after the load event)
+    page.wait_for_function("document.activeElement && document.activeElement.id === 'q'",
+                           timeout=5000)
     page.keyboard.type(scene.needle.lower()[-8:])
     page.keyboard.press("Enter")
     page.wait_for_url(re.compile(r"/items\?q="))

@@ -6,7 +6,7 @@ docstring, and networkx's `ancestors` for the derivation graph.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import networkx as nx
 from hypothesis import HealthCheck, given, settings
@@ -121,5 +121,14 @@ def test_resolver_matches_brute_force(session, operator, w: World) -> None:
         assert resolved == nx.ancestors(graph, made[w.query].id)
         below = {d for d, _, _ in history.descendants(session, [made[w.query].id])}
         assert below == nx.descendants(graph, made[w.query].id)
+
+        # the batched resolver (the audit's) answers for every item at once, each as if asked alone
+        every = [m.id for m in made]
+        batch = history.effective_histories(session, every, until)
+        lines = history.ancestors_of(session, every)
+        for k, m in enumerate(made):
+            alone = {ids[i]: _reach(*pair) for i, pair in reference(replace(w, query=k)).items()}
+            assert {h.event.id: h.reach for h in batch[m.id]} == alone
+            assert {a for a, _, _ in lines[m.id]} == nx.ancestors(graph, m.id)
     finally:
         savepoint.rollback()

@@ -402,12 +402,6 @@ def findings_by_item(session: Session, now: datetime) -> dict[int, list[Finding]
     return dict(out)
 
 
-def item_findings(session: Session, item: Item, now: datetime) -> list[Finding]:
-    """The allocation findings raised on one item (its allocations' trees only)."""
-    lineage = [item.id] + [a for a, _, _ in history.ancestors(session, item.id)]
-    return findings_for(session, {item.id: lineage}, now).get(item.id, [])
-
-
 def findings_for(session: Session, lineages: dict[int, list[int]], now: datetime
                  ) -> dict[int, list[Finding]]:
     """The allocation findings raised on each item, given its lineage (the item and its

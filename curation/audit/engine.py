@@ -5,9 +5,8 @@ from __future__ import annotations
 from collections import defaultdict
 from collections.abc import Callable, Iterator, Sequence
 from datetime import datetime
-from typing import Any
 
-from sqlalchemy import Select, select
+from sqlalchemy import select
 from sqlalchemy.orm import Session, joinedload
 
 from curation import history
@@ -60,13 +59,6 @@ CODES = (
 
 #: items audited together: each batch costs a fixed number of statements
 BATCH = 100
-#: ids bound per IN list (the resolver's: below every driver's limit on bound parameters)
-CHUNK = history.EVENT_CHUNK
-
-
-def thresholds_for(session: Session, item: Item) -> Thresholds:
-    """The item's first study's rules over the defaults."""
-    return _thresholds(session, [item.id])[item.id]
 
 
 def _thresholds(session: Session, ids: list[int]) -> dict[int, Thresholds]:
@@ -77,15 +69,6 @@ def _thresholds(session: Session, ids: list[int]) -> dict[int, Thresholds]:
             .where(StudyItem.item_id.in_(ids)).order_by(StudyItem.item_id, Study.id)):
         rules.setdefault(item_id, chosen)
     return {i: Thresholds.from_rules(rules.get(i)) for i in ids}
-
-
-def _chunked(session: Session, query: Callable[[list[int]], Select[Any]],
-             ids: list[int]) -> list[Any]:
-    """Rows of `query(chunk)` over the ids in chunks; one statement at least, even for none."""
-    rows: list[Any] = []
-    for start in range(0, max(len(ids), 1), CHUNK):
-        rows.extend(session.execute(query(ids[start:start + CHUNK])))
-    return rows
 
 
 def context(session: Session, item: Item, now: datetime | None = None) -> ItemContext:
@@ -104,8 +87,8 @@ def contexts(session: Session, items: Sequence[Item], now: datetime | None = Non
     if histories is None:
         histories = history.effective_histories(session, ids)
     event_ids = sorted({h.event.id for hs in histories.values() for h in hs})
-    superseded = {r[0] for r in _chunked(session, lambda c: select(Event.supersedes_id).where(
-        Event.supersedes_id.in_(c)), event_ids)}
+    superseded = set(history.in_chunks(session, lambda c: select(Event.supersedes_id).where(
+        Event.supersedes_id.in_(c)), event_ids))
     parents: dict[int, list[tuple[Item, datetime]]] = defaultdict(list)
     for d in session.scalars(select(Derivation).where(Derivation.child_id.in_(ids))
                              .options(joinedload(Derivation.parent))
@@ -142,10 +125,10 @@ def _load_controls(session: Session, ctxs: list[ItemContext], event_ids: list[in
     with_controls = set(session.scalars(select(StudyItem.study_id).where(
         StudyItem.study_id.in_(every_study), StudyItem.role == "control").distinct()))
     lineage = sorted({i for c in ctxs for i in (c.item.id, *c.ancestors)})
-    travelling = {r[0] for r in _chunked(session, lambda c: select(ControlLink.sample_id).where(
-        ControlLink.sample_id.in_(c)).distinct(), lineage)}
-    linked = {r[0] for r in _chunked(session, lambda c: select(ControlLink.event_id).where(
-        ControlLink.event_id.in_(c)), event_ids)}
+    travelling = set(history.in_chunks(session, lambda c: select(ControlLink.sample_id).where(
+        ControlLink.sample_id.in_(c)).distinct(), lineage))
+    linked = set(history.in_chunks(session, lambda c: select(ControlLink.event_id).where(
+        ControlLink.event_id.in_(c)), event_ids))
     for ctx in ctxs:
         mine = studies.get(ctx.item.id, set())
         ctx.indicators = {i.id: i for i in indicators if i.study_id in mine}
@@ -184,8 +167,14 @@ def audit_items(session: Session, items: Sequence[Item], now: datetime | None = 
                 histories: dict[int, list[history.HistoryEntry]] | None = None
                 ) -> dict[int, list[Finding]]:
     """Every finding on each item, oldest first, by item id; a fixed number of statements."""
-    moment = now or utcnow()
-    ctxs = contexts(session, items, moment, histories)
+    return audit_contexts(session, contexts(session, items, now, histories), allocated)
+
+
+def audit_contexts(session: Session, ctxs: list[ItemContext],
+                   allocated: dict[int, list[Finding]] | None = None
+                   ) -> dict[int, list[Finding]]:
+    """Every finding on each context's item (built by `contexts` at one instant), by item id."""
+    moment = ctxs[0].now if ctxs else utcnow()
     ends = _ends(session, ctxs)
     if allocated is None:
         # allocation rules read a whole allocation, not one item's context (audit/allocations.py)

@@ -11,7 +11,7 @@ from dataclasses import dataclass
 from sqlalchemy.orm import Session
 
 from curation.audit import engine, exposure, mass
-from curation.audit.findings import Thresholds
+from curation.audit.findings import ItemContext, Thresholds
 from curation.model import Item
 from curation.techniques.densities import material_class
 
@@ -63,8 +63,12 @@ def limits(t: Thresholds, b: exposure.Budget, material: str) -> list[Limit]:
 
 def item_budget(session: Session, item: Item) -> ItemBudget:
     """The budgets of one item, from the audit's context (a fixed number of queries)."""
-    ctx = engine.context(session, item)
-    spent = ctx.budget()
+    return budget_of(engine.context(session, item))
+
+
+def budget_of(ctx: ItemContext) -> ItemBudget:
+    """The budgets of the context's item."""
+    item, spent = ctx.item, ctx.budget()
     return ItemBudget(item, spent, mass.mass_budget(item, ctx.children, ctx.own()),
                       limits(ctx.thresholds, spent, item.material),
                       material_class(item.material))

@@ -17,7 +17,7 @@ from sqlalchemy.orm import Session, joinedload, selectinload
 from curation import history
 from curation.audit import engine, mass
 from curation.audit.exposure import event_dose
-from curation.audit.findings import Finding
+from curation.audit.findings import Finding, ItemContext
 from curation.model import (
     AllocationItem,
     DataFile,
@@ -29,7 +29,7 @@ from curation.model import (
     Station,
     StudyItem,
 )
-from curation.reports.budgets import ItemBudget, item_budget
+from curation.reports.budgets import ItemBudget, budget_of
 from curation.services.common import item_by_code
 from curation.techniques import Dose
 
@@ -94,8 +94,11 @@ def build(session: Session, code: str) -> LineageReport:
     events = _family_events(session, ids)
     derivations = {d.child_id: d for d in session.scalars(
         select(Derivation).where(Derivation.child_id.in_(ids)))}
-    budget = item_budget(session, particle)
-    entries = history.effective_history(session, particle.id)
+    # the audit's contexts of the whole family, once: the particle's budget and story, and
+    # every member's findings
+    ctxs = engine.contexts(session, [n.item for n in tree])
+    mine = next(c for c in ctxs if c.item.id == particle.id)
+    entries = mine.history
     holders = _holders(session, ids)
     return LineageReport(
         particle=particle, tree=tree,
@@ -109,8 +112,8 @@ def build(session: Session, code: str) -> LineageReport:
         custody=_merge(entries, events, holders, "custody", session),
         handling=_merge(entries, events, holders, "handling", session),
         controls=_controls(session, particle, entries, events),
-        findings=_findings(session, [n.item for n in tree]),
-        budget=budget, derivations=derivations)
+        findings=_findings(session, ctxs),
+        budget=budget_of(mine), derivations=derivations)
 
 
 def _family_events(session: Session, ids: list[int]) -> list[Event]:
@@ -199,10 +202,10 @@ def _controls(session: Session, particle: Item, entries: list[history.HistoryEnt
     return [found[c] for c in sorted(found)]
 
 
-def _findings(session: Session, family: list[Item]
+def _findings(session: Session, ctxs: list[ItemContext]
               ) -> list[tuple[Finding, Disposition | None]]:
     """The audit's findings on every item of the family, in one batch, family order."""
-    by_item = engine.audit_items(session, family)
-    found = [f for item in family for f in by_item[item.id]]
+    by_item = engine.audit_contexts(session, ctxs)
+    found = [f for ctx in ctxs for f in by_item[ctx.item.id]]
     decided = engine.dispositions(session, found)
     return [(f, decided.get(f.key)) for f in found]

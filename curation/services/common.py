@@ -26,7 +26,7 @@ def aware(field: str, value: datetime | None) -> datetime | None:
 
 def one_of(field: str, value: T, allowed: Iterable[T]) -> T:
     """Refuse a value outside a fixed set, naming the field and the choices."""
-    choices = list(allowed)
+    choices = allowed if isinstance(allowed, tuple | list | frozenset) else list(allowed)
     if value not in choices:
         raise InvalidInput(field, value, "one of " + ", ".join(str(c) for c in choices))
     return value

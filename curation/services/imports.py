@@ -168,19 +168,14 @@ def _by_kind(kind: str, row: Mapping[str, Any], details: dict[str, Any],
     if kind == _STEP:
         return _step(row, details, confirm_warnings, seen)
     if kind == _CUSTODY:
-        return {"action": _one_of("action", row.get("action"), _ACTIONS), "details": details}
+        return {"action": one_of("action", row.get("action"), _ACTIONS), "details": details}
     if kind == _HANDLING:
-        env = _one_of("environment", row.get("environment"), _ENVIRONMENTS)
+        env = one_of("environment", row.get("environment"), _ENVIRONMENTS)
         return {"environment": env, "details": details}
     action = str(row.get("action") or "").strip()
     if not action:
         raise InvalidInput("action", action, "what was read (the indicator or quantity)")
     return {"action": action, "details": details}
-
-
-def _one_of(field: str, value: Any, allowed: tuple[str, ...]) -> Any:
-    """services.common.one_of, without its work when the value is fine."""
-    return value if value in allowed else one_of(field, value, allowed)
 
 
 #: what check_row gives the columns a row's kind leaves alone, so that every checked row
@@ -202,7 +197,7 @@ def check_row(row: Mapping[str, Any], confirm_warnings: bool = False,
     item = str(row.get("item") or "").strip()
     if not item:
         raise InvalidInput("item", row.get("item"), "an item code")
-    kind = _one_of("kind", row.get("kind"), _KINDS)
+    kind = one_of("kind", row.get("kind"), _KINDS)
     occurred = _when("occurred_at", row.get("occurred_at"), True)
     ended = _when("ended_at", row.get("ended_at"), False)
     if ended is not None and occurred is not None and ended < occurred:

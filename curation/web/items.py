@@ -13,7 +13,7 @@ from dataclasses import dataclass, field
 from datetime import datetime
 from typing import Any, TypeVar
 
-from flask import Blueprint, current_app, g, redirect, render_template, request, url_for
+from flask import Blueprint, redirect, render_template, request, url_for
 from markupsafe import Markup, escape
 from sqlalchemy import func, or_, select
 from sqlalchemy.orm import Session, joinedload, selectinload
@@ -73,24 +73,11 @@ def _marks() -> dict[str, Any]:
 
 
 @bp.app_template_global()
-def item_href(code: str) -> str:
-    """The item page's address, exactly as url_for builds it, at a fraction of the cost:
-    the item page links every box of its lineage picture (a thousand in a large family)."""
-    built = g.get("item_href")
-    if built is None:
-        url_map = current_app.url_map
-        # The route is built once per request; "_" is never quoted, so it marks where the code goes.
-        built = g.item_href = (url_for("items.item_page", code="_")[:-1],
-                               url_map.converters["default"](url_map).to_url)
-    stem, quoted = built
-    return stem + quoted(code)
-
-
-@bp.app_template_global()
 def item_link_html(item: Item) -> Markup:
     """A link to an item's page, its kind and code: the one definition of the item link
     (the `item_link` macro of items/_marks.html wraps it; long lists call it directly)."""
-    return Markup(f'<a class="item-link" href="{escape(item_href(item.code))}">'
+    href = url_for("items.item_page", code=item.code)
+    return Markup(f'<a class="item-link" href="{escape(href)}">'
                   f'{escape(item.kind)} <span class="code">{escape(item.code)}</span></a>')
 
 
@@ -392,7 +379,7 @@ def item_page(code: str) -> str:
     view = item_view(db_session(), code)
     picture = lineage_svg.render(
         view.tree, current_id=view.item.id, label=f"Lineage of {view.item.code}",
-        href=lambda i: item_href(i.code))
+        href=lambda i: url_for("items.item_page", code=i.code))
     return render_template("items/item.html", v=view, picture=Markup(picture),
                            files=images.files_with_images(db_session(), view.item.id),
                            control_kinds={k.value for k in CONTROL_KINDS})

@@ -1,4 +1,4 @@
-"""Serving under load: item links built without url_for's cost, SQLite writers queued in the
+"""Serving under load: SQLite writers queued in the
 process for the length of their request, the start-up heap kept out of the collector's way,
 and a large family's lineage picture drawn around the item."""
 
@@ -10,7 +10,7 @@ from collections.abc import Iterator
 from pathlib import Path
 
 import pytest
-from flask import Flask, request, url_for
+from flask import Flask, request
 from flask.testing import FlaskClient
 from sqlalchemy import text
 from sqlalchemy.orm import Session
@@ -24,19 +24,8 @@ from curation.services import accounts
 from curation.web import auth
 from curation.web import items as items_web
 from curation.web.app import database, db_session, settle_for_serving
-from curation.web.items import around, item_href
+from curation.web.items import around
 from tests.web.test_items import build_family, page
-
-#: codes with every kind of character a label might carry (the reference is url_for itself)
-ODD_CODES = ["KR-0302-L1-N2", "a b", "ä/ö", "x?y#z", "%41", "_", "<&>\"'", "a+b=c;d@e", "日本"]
-
-
-def test_item_href_is_what_url_for_builds(app: Flask) -> None:
-    for root in ("", "/lab"):
-        with app.test_request_context("/", base_url=f"http://lab.example{root}"):
-            for code in ODD_CODES:
-                assert item_href(code) == url_for("items.item_page", code=code), (root, code)
-
 
 @pytest.fixture
 def file_app(tmp_path: Path, monkeypatch: pytest.MonkeyPatch
